@@ -1,0 +1,126 @@
+//! Scalar expressions in `x`, `y` and `t` (prescribed velocities, exact solutions, body forces),
+//! parsed and evaluated by the `exmex` crate.
+
+use exmex::prelude::*;
+
+/// The variables an expression may use.
+pub const EXPRESSION_VARIABLES: [&str; 3] = ["x", "y", "t"];
+
+/// A parsed scalar expression `f(x, y, t)`.
+#[derive(Clone, Debug)]
+pub struct ScalarExpr {
+    source: String,
+    // Boxed: exmex keeps its operator tables inline (tens of kB per expression).
+    compiled: Option<Box<exmex::FlatEx<f64>>>,
+    /// For each variable of `compiled` (exmex sorts them by name), its slot in `[x, y, t]`.
+    slots: Vec<usize>,
+    constant: f64,
+}
+
+/// Why an expression was rejected.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[non_exhaustive]
+pub enum ExprError {
+    #[error("expression `{source_text}` does not parse: {reason}")]
+    Syntax { source_text: String, reason: String },
+    #[error("expression `{source_text}` uses unknown variable `{variable}` (allowed: x, y, t)")]
+    UnknownVariable { source_text: String, variable: String },
+}
+
+impl ScalarExpr {
+    /// Parses `source`; only the variables `x`, `y` and `t` are allowed.
+    ///
+    /// # Errors
+    /// [`ExprError::Syntax`] when the text does not parse, [`ExprError::UnknownVariable`] when
+    /// it names another variable.
+    pub fn parse(source: &str) -> Result<Self, ExprError> {
+        let compiled = exmex::parse::<f64>(source).map_err(|e| ExprError::Syntax {
+            source_text: source.to_string(),
+            reason: e.to_string(),
+        })?;
+        let mut slots = Vec::new();
+        for name in compiled.var_names() {
+            match EXPRESSION_VARIABLES.iter().position(|v| v == name) {
+                Some(slot) => slots.push(slot),
+                None => {
+                    return Err(ExprError::UnknownVariable {
+                        source_text: source.to_string(),
+                        variable: name.clone(),
+                    });
+                }
+            }
+        }
+        let constant = if slots.is_empty() { compiled.eval(&[]).unwrap_or(f64::NAN) } else { 0.0 };
+        Ok(ScalarExpr {
+            source: source.to_string(),
+            compiled: Some(Box::new(compiled)),
+            slots,
+            constant,
+        })
+    }
+
+    /// A constant expression.
+    pub fn constant(value: f64) -> Self {
+        ScalarExpr {
+            source: format!("{value}"),
+            compiled: None,
+            slots: Vec::new(),
+            constant: value,
+        }
+    }
+
+    /// The text the expression was parsed from.
+    pub fn source(&self) -> &str {
+        &self.source
+    }
+
+    /// True when the expression uses `t`.
+    pub fn depends_on_time(&self) -> bool {
+        self.slots.contains(&2)
+    }
+
+    /// Evaluates at `(x, y, t)`. An evaluation error (e.g. a domain error) gives NaN, which the
+    /// solvers reject as a non-finite boundary value.
+    pub fn eval(&self, x: f64, y: f64, t: f64) -> f64 {
+        let Some(compiled) = &self.compiled else { return self.constant };
+        if self.slots.is_empty() {
+            return self.constant;
+        }
+        let all = [x, y, t];
+        let mut vars = [0.0; 3];
+        for (k, &slot) in self.slots.iter().enumerate() {
+            vars[k] = all[slot];
+        }
+        compiled.eval(&vars[..self.slots.len()]).unwrap_or(f64::NAN)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn evaluates_variables_in_any_order() {
+        let e = ScalarExpr::parse("y*10 + x - t^2").unwrap();
+        assert_eq!(e.eval(1.0, 2.0, 3.0), 20.0 + 1.0 - 9.0);
+        assert!(e.depends_on_time());
+    }
+
+    #[test]
+    fn rejects_unknown_variable_and_bad_syntax() {
+        assert!(matches!(ScalarExpr::parse("x + z"), Err(ExprError::UnknownVariable { .. })));
+        assert!(matches!(ScalarExpr::parse("x + *"), Err(ExprError::Syntax { .. })));
+    }
+
+    #[test]
+    fn expressions_can_be_shared_across_threads() {
+        fn assert_send_sync<T: Send + Sync>() {}
+        assert_send_sync::<ScalarExpr>();
+    }
+
+    #[test]
+    fn constants_evaluate_without_variables() {
+        assert_eq!(ScalarExpr::parse("2*3").unwrap().eval(5.0, 5.0, 5.0), 6.0);
+        assert_eq!(ScalarExpr::constant(1.5).eval(0.0, 0.0, 0.0), 1.5);
+    }
+}

@@ -1,0 +1,11 @@
+//! The integration test binary (one binary, themed modules; see DEVELOPERS.md).
+
+mod util;
+
+mod case_files;
+mod cli;
+mod corners;
+mod forces;
+mod mesh_props;
+mod stokes;
+mod vtk_roundtrip;
