@@ -1,0 +1,96 @@
+//! Command-line arguments (parsing only; see `settings` for the second stage that reads the
+//! case file). The doc comments here are the single source of `--help`.
+
+use std::path::PathBuf;
+
+use clap::{Args, Parser, Subcommand};
+
+/// cornerflow: 2D incompressible viscous flow (Stokes, Navier–Stokes) on polygonal domains
+/// with sharp corners — meshing, solving, forces, and corner-singularity diagnostics.
+#[derive(Debug, Parser)]
+#[command(name = "cornerflow", version, about, long_about = None)]
+pub struct Cli {
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Mesh a case and write the mesh as a VTK file, with a summary on the terminal.
+    Mesh(MeshArgs),
+    /// Solve a case (the built-in default case when none is given) and write the results.
+    Run(RunArgs),
+    /// Analyse the corners of a case's domain: angles, singular exponents, regularity.
+    Corners(CornersArgs),
+}
+
+/// Options shared by the commands that mesh a case.
+#[derive(Debug, Args)]
+pub struct MeshingOptions {
+    /// Output folder (default: the case's `output.directory`).
+    #[arg(short = 'o', long = "output", value_name = "DIR")]
+    pub output: Option<PathBuf>,
+    /// Mesh even when the estimated triangle count exceeds the case's cap.
+    #[arg(long)]
+    pub force: bool,
+}
+
+#[derive(Debug, Args)]
+pub struct MeshArgs {
+    /// The case file (TOML).
+    #[arg(value_name = "CASE")]
+    pub case: PathBuf,
+    #[command(flatten)]
+    pub meshing: MeshingOptions,
+}
+
+#[derive(Debug, Args)]
+pub struct RunArgs {
+    /// The case file (TOML); omit it to run the built-in default case.
+    #[arg(value_name = "CASE")]
+    pub case: Option<PathBuf>,
+    #[command(flatten)]
+    pub meshing: MeshingOptions,
+    /// Number of threads for assembly (default: all cores).
+    #[arg(long, value_name = "N")]
+    pub threads: Option<usize>,
+}
+
+#[derive(Debug, Args)]
+pub struct CornersArgs {
+    /// The case file (TOML).
+    #[arg(value_name = "CASE")]
+    pub case: PathBuf,
+    /// Also write the analysis as JSON to this file.
+    #[arg(long, value_name = "FILE")]
+    pub json: Option<PathBuf>,
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn mesh_takes_a_case_an_output_folder_and_force() {
+        let cli = Cli::try_parse_from(["cornerflow", "mesh", "c.toml", "-o", "out", "--force"]).unwrap();
+        let Command::Mesh(args) = cli.command else { panic!("expected mesh") };
+        assert_eq!(args.case, PathBuf::from("c.toml"));
+        assert_eq!(args.meshing.output, Some(PathBuf::from("out")));
+        assert!(args.meshing.force);
+    }
+
+    #[test]
+    fn run_without_a_case_uses_the_default() {
+        let cli = Cli::try_parse_from(["cornerflow", "run"]).unwrap();
+        let Command::Run(args) = cli.command else { panic!("expected run") };
+        assert!(args.case.is_none());
+    }
+
+    #[test]
+    fn corners_takes_a_json_path_and_unknown_options_are_rejected() {
+        let cli = Cli::try_parse_from(["cornerflow", "corners", "c.toml", "--json", "c.json"]).unwrap();
+        let Command::Corners(args) = cli.command else { panic!("expected corners") };
+        assert_eq!(args.json, Some(PathBuf::from("c.json")));
+        assert!(Cli::try_parse_from(["cornerflow", "mesh", "c.toml", "--bogus"]).is_err());
+    }
+}
