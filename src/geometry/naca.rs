@@ -205,4 +205,48 @@ mod tests {
         // Tolerance: cos(π/2) in floating point is 6.1e-17; times a lever of 0.75.
         assert!((te[0] - 0.25).abs() < 1e-15 && (te[1] + 0.75).abs() < 1e-15, "{te:?}");
     }
+
+    #[test]
+    fn thickness_at_thirty_percent_chord_is_the_nominal_thickness() {
+        // Outside fact (common knowledge of the NACA 4-digit family, e.g. Abbott & von Doenhoff
+        // 1959, §6.4): the maximum thickness t of a 00xx section sits at x ≈ 0.30 c.
+        // Tolerance: the published coefficients are rounded to 4 decimals (±5e-5 each); the
+        // full thickness 2·5t·Σ|δa_k| x^k at x = 0.3 then varies by at most
+        // 10t·5e-5·(√0.3 + 0.3 + 0.09 + 0.027 + 0.0081) = 4.9e-4 t; the closed-edge coefficient
+        // −0.1036 instead of −0.1015 shifts it by 10t·0.0021·0.3⁴ = 1.7e-4 t. Sum: 6.6e-4 t.
+        for t in [0.06, 0.12, 0.21] {
+            let full = 2.0 * half_thickness(t, 0.3);
+            assert!((full - t).abs() <= 6.6e-4 * t, "t = {t}: thickness {full}");
+        }
+    }
+
+    #[test]
+    fn trailing_edge_closes_to_round_off_on_the_generated_profile() {
+        let pts = profile("0012", 101).points().unwrap();
+        // Last lower-surface point and the first upper one straddle the TE; the TE itself
+        // is a single point at (1, 0): its y equals the camber (0) exactly by construction.
+        assert_eq!(pts[0], [1.0, 0.0]);
+        // The neighbours close in on it: y_t(x) ≈ 5t·Σa_k·(x−1)… vanishes linearly, so at the
+        // first station (1 − x ≈ (π/100)²/4 = 2.5e-4) the half-thickness is below
+        // 5t·|y_t'(1)|·2.5e-4 with |y_t'(1)| ≤ 0.5·0.2969 + 0.1260 + 0.7032 + 0.8529 + 0.4144 < 2.3.
+        let bound = 5.0 * 0.12 * 2.3 * 2.5e-4;
+        assert!(pts[1][1].abs() < bound && pts[pts.len() - 1][1].abs() < bound);
+    }
+
+    #[test]
+    fn profile_area_converges_to_the_known_naca_0012_area() {
+        // From memory (mark: not retrieved): the standard NACA 0012 encloses ≈ 0.0822 c²
+        // (0.685 t c). The closed-edge coefficient removes 2·5t·0.0021/5 c² = 0.0042 t c²
+        // = 5.04e-4 c², so the closed section should enclose 0.0822 − 0.0005 = 0.0817 c²;
+        // 5e-5 is the rounding of the remembered value.
+        let exact_closed = 0.0822 - 0.0042 * 0.12;
+        let mut errors = Vec::new();
+        for n in [21, 41, 81, 161] {
+            let area = signed_area(&profile("0012", n).points().unwrap());
+            errors.push((area - exact_closed).abs());
+        }
+        assert!(errors[3] < 5e-5, "errors {errors:?}");
+        // The inscribed polygon misses area between stations, so the error shrinks with refinement.
+        assert!(errors[0] > errors[1] && errors[1] > errors[2], "errors {errors:?}");
+    }
 }

@@ -1,0 +1,711 @@
+//! Turns case-file text into a validated [`Case`]: parse, check every value, build the domain.
+//!
+//! Takes the TOML text and the path it came from; returns a [`Case`] or the first
+//! [`CaseError`], located by file, line, column and key path. Coordinate files named by bodies
+//! are read here (relative to the case file's folder); nothing else does I/O.
+
+use std::collections::{BTreeMap, BTreeSet};
+use std::ops::Range;
+use std::path::{Path, PathBuf};
+
+use super::error::{CaseError, Site};
+use super::raw::*;
+use super::{
+    Body, BoundaryCondition, Case, Equations, ExactSolution, Fluid, Model, Output,
+    PressureDifference, Probe, ScalarExpr, TimeStepping,
+};
+use crate::fem::ViscousForm;
+use crate::geometry::naca::{NacaProfile, parse_designation};
+use crate::geometry::shapes::{Orientation, orient, rectangle, regular_polygon};
+use crate::geometry::validate::{Arrangement, check_disjoint, check_inside, check_loop};
+use crate::geometry::{BoundaryLoop, Circle, Domain, PartId, Point};
+use crate::mesh::{Grading, MeshControls};
+
+/// Default minimum angle (degrees) the mesher aims for.
+pub const DEFAULT_MIN_ANGLE_DEG: f64 = 28.0;
+/// Default cap on the estimated triangle count.
+pub const DEFAULT_MAX_TRIANGLES: usize = 2_000_000;
+/// Default size growth rate of a grading (size increase per unit distance). Common practice,
+/// no source: rates of 0.2–0.3 keep neighbouring triangles within a factor of about 1.3.
+pub const DEFAULT_GROWTH: f64 = 0.25;
+/// Geometric tolerance relative to the outer boundary's bounding-box diagonal: points closer than
+/// this are "the same point". Far above round-off (1e-16) and far below any meaningful feature.
+pub const RELATIVE_TOLERANCE: f64 = 1e-10;
+
+/// Parses and validates a case; see [`Case::parse`].
+pub(super) fn build(text: &str, origin: &Path) -> Result<Case, CaseError> {
+    let cx = Context::new(text, origin);
+    let raw = cx.deserialize()?;
+    let fluid = cx.fluid(raw.fluid)?;
+    let (domain, bodies) = cx.domain(raw.domain)?;
+    let conditions = cx.conditions(raw.conditions, &domain)?;
+    let mesh = cx.mesh(raw.mesh, &domain, &bodies)?;
+    let model = cx.model(raw.model)?;
+    let default_name = origin.file_stem().map(|s| s.to_string_lossy().into_owned());
+    Ok(Case {
+        name: raw.name.map(|n| n.into_inner()).or(default_name).unwrap_or_else(|| "case".into()),
+        source: origin.to_path_buf(),
+        forces: cx.forces(raw.report.forces, &domain, &bodies)?,
+        probes: raw.report.probes.into_iter().map(|p| p.into_inner()).map(probe).collect(),
+        pressure_difference: raw.report.pressure_difference.map(|s| {
+            let [first, second] = s.into_inner();
+            PressureDifference { first, second }
+        }),
+        exact: raw.exact.map(|e| cx.exact(e)).transpose()?,
+        body_force: raw.body_force.map(|f| cx.body_force(f)).transpose()?,
+        output: cx.output(raw.output),
+        fluid,
+        domain,
+        bodies,
+        mesh,
+        conditions,
+        model,
+    })
+}
+
+fn probe(p: RawProbe) -> Probe {
+    Probe { name: p.name, point: p.at }
+}
+
+/// The file being read: its text (for line numbers), path and folder.
+struct Context<'a> {
+    text: &'a str,
+    file: PathBuf,
+    folder: PathBuf,
+}
+
+/// Boundary parts in order of first appearance.
+#[derive(Default)]
+struct Parts {
+    names: Vec<String>,
+}
+
+impl Parts {
+    fn id(&mut self, name: &str) -> PartId {
+        match self.names.iter().position(|n| n == name) {
+            Some(id) => id,
+            None => {
+                self.names.push(name.to_string());
+                self.names.len() - 1
+            }
+        }
+    }
+}
+
+impl<'a> Context<'a> {
+    fn new(text: &'a str, origin: &Path) -> Self {
+        let folder = origin.parent().map(Path::to_path_buf).unwrap_or_default();
+        Context { text, file: origin.to_path_buf(), folder }
+    }
+
+    /// The site of `key` at byte range `span` of the text.
+    fn site(&self, key: impl Into<String>, span: Range<usize>) -> Box<Site> {
+        let position = Some(self.line_col(span.start));
+        Box::new(Site { file: self.file.clone(), position, key: key.into() })
+    }
+
+    /// 1-based line and column (in characters) of byte `offset`.
+    fn line_col(&self, offset: usize) -> (usize, usize) {
+        let offset = offset.min(self.text.len());
+        let before = self.text.get(..offset).unwrap_or("");
+        let line = before.matches('\n').count() + 1;
+        let line_start = before.rfind('\n').map_or(0, |i| i + 1);
+        (line, before[line_start..].chars().count() + 1)
+    }
+
+    /// The `[table]` header in force at byte `offset` (empty at the top level).
+    fn table_at(&self, offset: usize) -> String {
+        let before = self.text.get(..offset.min(self.text.len())).unwrap_or("");
+        before
+            .lines()
+            .rev()
+            .map(str::trim)
+            .find(|l| l.starts_with('['))
+            .map(|l| l.trim_matches(|c| c == '[' || c == ']').trim().to_string())
+            .unwrap_or_default()
+    }
+
+    fn deserialize(&self) -> Result<RawCase, CaseError> {
+        if let Err(e) = self.text.parse::<toml::Table>() {
+            let at = self.error_site(e.span(), String::new());
+            return Err(CaseError::Syntax { at, message: e.message().trim().to_string() });
+        }
+        toml::from_str::<RawCase>(self.text).map_err(|e| self.schema_error(&e))
+    }
+
+    fn schema_error(&self, e: &toml::de::Error) -> CaseError {
+        let message = e.message().trim().to_string();
+        let table = e.span().map(|s| self.table_at(s.start)).unwrap_or_default();
+        if let Some(rest) = message.strip_prefix("unknown field `") {
+            let name = rest.split('`').next().unwrap_or("").to_string();
+            let key = if table.is_empty() { name.clone() } else { format!("{table}.{name}") };
+            return CaseError::UnknownKey { at: self.error_site(e.span(), key), name };
+        }
+        let key = match e.span().and_then(|s| self.key_on_line(s.start)) {
+            Some(k) if table.is_empty() => k,
+            Some(k) => format!("{table}.{k}"),
+            None => table,
+        };
+        CaseError::Schema { at: self.error_site(e.span(), key), message }
+    }
+
+    /// The key of a plain `key = value` line whose value starts at byte `offset`; `None` for
+    /// values inside inline tables or arrays, whose key path this simple scan cannot know.
+    fn key_on_line(&self, offset: usize) -> Option<String> {
+        let before = self.text.get(..offset.min(self.text.len()))?;
+        let prefix = &before[before.rfind('\n').map_or(0, |i| i + 1)..];
+        let key = prefix.trim_end().strip_suffix('=')?.trim();
+        let plain = !key.is_empty() && !key.contains(['{', '[', ',', '"', '\'']);
+        plain.then(|| key.to_string())
+    }
+
+    fn error_site(&self, span: Option<Range<usize>>, key: String) -> Box<Site> {
+        let position = span.map(|s| self.line_col(s.start));
+        Box::new(Site { file: self.file.clone(), position, key })
+    }
+
+    fn positive(&self, key: &str, value: &Sp<f64>) -> Result<f64, CaseError> {
+        let v = *value.get_ref();
+        if v.is_finite() && v > 0.0 {
+            Ok(v)
+        } else {
+            Err(CaseError::NotPositive { at: self.site(key, value.span()), value: v })
+        }
+    }
+
+    fn fluid(&self, raw: Sp<RawFluid>) -> Result<Fluid, CaseError> {
+        let span = raw.span();
+        let f = raw.into_inner();
+        let density = self.positive("fluid.density", &f.density)?;
+        let nu = match (&f.kinematic_viscosity, &f.dynamic_viscosity) {
+            (Some(nu), None) => self.positive("fluid.kinematic_viscosity", nu)?,
+            (None, Some(mu)) => self.positive("fluid.dynamic_viscosity", mu)? / density,
+            (Some(_), Some(_)) => {
+                let at = self.site("fluid", span);
+                return Err(CaseError::Viscosity { at, found: ", found both" });
+            }
+            (None, None) => {
+                let at = self.site("fluid", span);
+                return Err(CaseError::Viscosity { at, found: ", found neither" });
+            }
+        };
+        Ok(Fluid {
+            density,
+            kinematic_viscosity: nu,
+            reference_velocity: self.positive("fluid.reference_velocity", &f.reference_velocity)?,
+            reference_length: self.positive("fluid.reference_length", &f.reference_length)?,
+        })
+    }
+
+    fn domain(&self, raw: RawDomain) -> Result<(Domain, Vec<Body>), CaseError> {
+        let mut parts = Parts::default();
+        let outer = self.outer(raw.outer, &mut parts)?;
+        let tol = RELATIVE_TOLERANCE * diagonal(&outer.points);
+        let mut holes: Vec<BoundaryLoop> = Vec::new();
+        let mut bodies: Vec<Body> = Vec::new();
+        for (i, sp) in raw.bodies.into_iter().enumerate() {
+            let key = format!("domain.bodies[{i}]");
+            let span = sp.span();
+            let (hole, body) = self.body(&key, sp.into_inner(), &mut parts, tol)?;
+            self.check_placement(&key, span, &outer, &holes, &hole, tol)?;
+            holes.push(hole);
+            bodies.push(body);
+        }
+        Ok((Domain { outer, holes, part_names: parts.names }, bodies))
+    }
+
+    fn check_polygon(
+        &self,
+        key: &str,
+        pts: &[Point],
+        tol: f64,
+        span: Range<usize>,
+    ) -> Result<(), CaseError> {
+        check_loop(pts, tol)
+            .map_err(|defect| CaseError::Polygon { at: self.site(key, span), defect })
+    }
+
+    fn check_placement(
+        &self,
+        key: &str,
+        span: Range<usize>,
+        outer: &BoundaryLoop,
+        holes: &[BoundaryLoop],
+        hole: &BoundaryLoop,
+        tol: f64,
+    ) -> Result<(), CaseError> {
+        let at = self.site(key, span);
+        let body = hole.name.clone();
+        match check_inside(&outer.points, &hole.points, tol) {
+            Err(Arrangement::Touching) => return Err(CaseError::BodyTouchesOuter { at, body }),
+            Err(Arrangement::Containing) => return Err(CaseError::BodyOutside { at, body }),
+            Ok(()) => {}
+        }
+        for other in holes {
+            if check_disjoint(&other.points, &hole.points, tol).is_err() {
+                let first = other.name.clone();
+                return Err(CaseError::BodiesOverlap { at, first, second: body });
+            }
+        }
+        Ok(())
+    }
+
+    fn outer(&self, raw: Sp<RawOuter>, parts: &mut Parts) -> Result<BoundaryLoop, CaseError> {
+        let span = raw.span();
+        let o = raw.into_inner();
+        let (points, names) = match (o.rectangle, o.points) {
+            (Some(r), None) => self.rectangle_outer(r, o.sides)?,
+            (None, Some(p)) => {
+                let pspan = p.span();
+                let points = drop_closing_point(p.into_inner());
+                let tol = RELATIVE_TOLERANCE * diagonal(&points);
+                self.check_polygon("domain.outer.points", &points, tol, pspan)?;
+                let names = self.edge_names(o.edge_parts, points.len())?;
+                (points, names)
+            }
+            _ => return Err(CaseError::OuterShape { at: self.site("domain.outer", span) }),
+        };
+        let edge_parts = names.iter().map(|n| parts.id(n)).collect();
+        let mut lp = BoundaryLoop { name: "outer".into(), points, edge_parts, circle: None };
+        orient(&mut lp, Orientation::CounterClockwise);
+        Ok(lp)
+    }
+
+    fn rectangle_outer(
+        &self,
+        r: Sp<[f64; 4]>,
+        sides: Option<RawSides>,
+    ) -> Result<(Vec<Point>, Vec<String>), CaseError> {
+        let [x0, y0, x1, y1] = *r.get_ref();
+        let ok = [x0, y0, x1, y1].iter().all(|v| v.is_finite()) && x1 > x0 && y1 > y0;
+        if !ok {
+            let at = self.site("domain.outer.rectangle", r.span());
+            return Err(CaseError::Rectangle { at, value: [x0, y0, x1, y1] });
+        }
+        let s = sides.unwrap_or(RawSides { bottom: None, right: None, top: None, left: None });
+        let name = |v: Option<String>, d: &str| v.unwrap_or_else(|| d.to_string());
+        let names = vec![
+            name(s.bottom, "bottom"),
+            name(s.right, "right"),
+            name(s.top, "top"),
+            name(s.left, "left"),
+        ];
+        Ok((rectangle(x0, y0, x1, y1), names))
+    }
+
+    fn edge_names(
+        &self,
+        raw: Option<Sp<Vec<String>>>,
+        edges: usize,
+    ) -> Result<Vec<String>, CaseError> {
+        let Some(names) = raw else { return Ok(vec!["outer".to_string(); edges]) };
+        if names.get_ref().len() != edges {
+            let at = self.site("domain.outer.edge_parts", names.span());
+            return Err(CaseError::PartCount { at, given: names.get_ref().len(), edges });
+        }
+        Ok(names.into_inner())
+    }
+
+    fn body(
+        &self,
+        key: &str,
+        b: RawBody,
+        parts: &mut Parts,
+        tol: f64,
+    ) -> Result<(BoundaryLoop, Body), CaseError> {
+        let name = b.name.get_ref().clone();
+        if parts.names.contains(&name) && b.part.is_none() {
+            let at = self.site(format!("{key}.name"), b.name.span());
+            return Err(CaseError::DuplicateBody { at, name });
+        }
+        let (points, circle, trailing_edge, shape_key, span) = self.body_shape(key, &b)?;
+        let points = drop_closing_point(points);
+        self.check_polygon(&shape_key, &points, tol, span)?;
+        let part = parts.id(b.part.as_deref().unwrap_or(&name));
+        let edge_parts = vec![part; points.len()];
+        let mut hole = BoundaryLoop { name: name.clone(), points, edge_parts, circle };
+        orient(&mut hole, Orientation::Clockwise);
+        Ok((hole, Body { name, part, trailing_edge }))
+    }
+
+    /// The body outline from whichever shape key is present: points, circle, trailing edge,
+    /// the shape's key path and its span.
+    #[allow(clippy::type_complexity)]
+    fn body_shape(
+        &self,
+        key: &str,
+        b: &RawBody,
+    ) -> Result<(Vec<Point>, Option<Circle>, Option<Point>, String, Range<usize>), CaseError> {
+        let given: Vec<&str> = [
+            b.points.as_ref().map(|_| "points"),
+            b.file.as_ref().map(|_| "file"),
+            b.naca.as_ref().map(|_| "naca"),
+            b.polygon.as_ref().map(|_| "polygon"),
+        ]
+        .into_iter()
+        .flatten()
+        .collect();
+        if given.len() != 1 {
+            let found = if given.is_empty() {
+                ", found none".into()
+            } else {
+                format!(", found {}", given.join(" and "))
+            };
+            return Err(CaseError::BodyShape { at: self.site(key, b.name.span()), found });
+        }
+        let k = format!("{key}.{}", given[0]);
+        if let Some(p) = &b.points {
+            return Ok((p.get_ref().clone(), None, None, k, p.span()));
+        }
+        if let Some(f) = &b.file {
+            return Ok((self.coordinate_file(&k, f)?, None, None, k, f.span()));
+        }
+        if let Some(n) = &b.naca {
+            let (pts, te) = self.naca(&k, n)?;
+            return Ok((pts, None, Some(te), k, n.span()));
+        }
+        let p = b.polygon.as_ref().ok_or_else(|| CaseError::BodyShape {
+            at: self.site(key, b.name.span()),
+            found: String::new(),
+        })?;
+        let (pts, circle) = self.polygon(&k, p)?;
+        Ok((pts, circle, None, k, p.span()))
+    }
+
+    fn coordinate_file(&self, key: &str, f: &Sp<String>) -> Result<Vec<Point>, CaseError> {
+        let path = self.folder.join(f.get_ref());
+        let text = std::fs::read_to_string(&path).map_err(|source| CaseError::CoordinateFile {
+            at: self.site(key, f.span()),
+            path: path.clone(),
+            source,
+        })?;
+        super::coords::parse_coordinates(&text).map_err(|bad| CaseError::CoordinateLine {
+            path,
+            line: bad.line,
+            content: bad.content,
+            reason: bad.reason,
+        })
+    }
+
+    fn naca(&self, key: &str, n: &Sp<RawNaca>) -> Result<(Vec<Point>, Point), CaseError> {
+        let r = n.get_ref();
+        let at = || self.site(key, n.span());
+        let (m, p, t) =
+            parse_designation(&r.digits).map_err(|source| CaseError::Naca { at: at(), source })?;
+        if !(r.chord.is_finite() && r.chord > 0.0) {
+            return Err(CaseError::NotPositive {
+                at: self.site(format!("{key}.chord"), n.span()),
+                value: r.chord,
+            });
+        }
+        let count = usize::try_from(r.points_per_side).unwrap_or(0);
+        let le = r.leading_edge;
+        let profile = NacaProfile {
+            max_camber: m,
+            camber_position: p,
+            thickness: t,
+            chord: r.chord,
+            incidence_deg: r.incidence_deg,
+            leading_edge: le,
+            pivot: r.pivot.unwrap_or([le[0] + 0.25 * r.chord, le[1]]),
+            points_per_side: count,
+        };
+        let pts = profile.points().map_err(|source| CaseError::Naca { at: at(), source })?;
+        Ok((pts, profile.trailing_edge()))
+    }
+
+    fn polygon(
+        &self,
+        key: &str,
+        p: &Sp<RawPolygon>,
+    ) -> Result<(Vec<Point>, Option<Circle>), CaseError> {
+        let r = p.get_ref();
+        if !(r.radius.is_finite() && r.radius > 0.0) {
+            return Err(CaseError::NotPositive {
+                at: self.site(format!("{key}.radius"), p.span()),
+                value: r.radius,
+            });
+        }
+        if !(3..=100_000).contains(&r.sides) {
+            let at = self.site(format!("{key}.sides"), p.span());
+            return Err(CaseError::Count {
+                at,
+                count: r.sides,
+                expected: "a polygon has 3 to 100000 sides",
+            });
+        }
+        let pts = regular_polygon(r.center, r.radius, r.sides as usize, r.start_angle_deg);
+        let circle = r.circle.then_some(Circle { center: r.center, radius: r.radius });
+        Ok((pts, circle))
+    }
+
+    fn conditions(
+        &self,
+        raw: BTreeMap<Sp<String>, Sp<RawCondition>>,
+        domain: &Domain,
+    ) -> Result<Vec<BoundaryCondition>, CaseError> {
+        let mut out: Vec<Option<BoundaryCondition>> = vec![None; domain.part_names.len()];
+        for (name, cond) in raw {
+            let key = format!("conditions.{}", name.get_ref());
+            let id = self.part_id(&key, &name, domain)?;
+            out[id] = Some(self.condition(&key, cond)?);
+        }
+        out.into_iter()
+            .enumerate()
+            .map(|(id, c)| {
+                c.ok_or_else(|| CaseError::MissingCondition {
+                    at: Box::new(Site {
+                        file: self.file.clone(),
+                        position: None,
+                        key: "conditions".into(),
+                    }),
+                    part: domain.part_names[id].clone(),
+                })
+            })
+            .collect()
+    }
+
+    fn part_id(&self, key: &str, name: &Sp<String>, domain: &Domain) -> Result<PartId, CaseError> {
+        domain.part_id(name.get_ref()).ok_or_else(|| CaseError::UnknownPart {
+            at: self.site(key, name.span()),
+            part: name.get_ref().clone(),
+            known: domain.part_names.join(", "),
+        })
+    }
+
+    fn condition(&self, key: &str, c: Sp<RawCondition>) -> Result<BoundaryCondition, CaseError> {
+        let span = c.span();
+        let c = c.into_inner();
+        if c.kind != RawKind::Velocity && (c.ux.is_some() || c.uy.is_some()) {
+            let message = "`ux`/`uy` are only allowed with kind = \"velocity\"".to_string();
+            return Err(CaseError::Schema { at: self.site(key, span), message });
+        }
+        Ok(match c.kind {
+            RawKind::NoSlip => BoundaryCondition::NoSlip,
+            RawKind::Outflow => BoundaryCondition::Outflow,
+            RawKind::Slip => BoundaryCondition::Slip,
+            RawKind::Velocity => {
+                let (Some(ux), Some(uy)) = (c.ux, c.uy) else {
+                    let message = "kind = \"velocity\" needs both `ux` and `uy`".to_string();
+                    return Err(CaseError::Schema { at: self.site(key, span), message });
+                };
+                BoundaryCondition::Velocity {
+                    ux: self.expr(&format!("{key}.ux"), &ux)?,
+                    uy: self.expr(&format!("{key}.uy"), &uy)?,
+                }
+            }
+        })
+    }
+
+    fn expr(&self, key: &str, e: &Sp<RawExpr>) -> Result<ScalarExpr, CaseError> {
+        match e.get_ref() {
+            RawExpr::Number(v) if v.is_finite() => Ok(ScalarExpr::constant(*v)),
+            RawExpr::Number(v) => Err(CaseError::Schema {
+                at: self.site(key, e.span()),
+                message: format!("value {v} is not finite"),
+            }),
+            RawExpr::Text(s) => ScalarExpr::parse(s)
+                .map_err(|source| CaseError::Expression { at: self.site(key, e.span()), source }),
+        }
+    }
+
+    fn mesh(
+        &self,
+        raw: Sp<RawMesh>,
+        domain: &Domain,
+        bodies: &[Body],
+    ) -> Result<MeshControls, CaseError> {
+        let m = raw.into_inner();
+        let size = self.positive("mesh.size", &m.size)?;
+        let mut part_sizes = vec![None; domain.part_names.len()];
+        for (name, value) in &m.part_sizes {
+            let key = format!("mesh.part_sizes.{}", name.get_ref());
+            let id = self.part_id(&key, name, domain)?;
+            part_sizes[id] = Some(self.positive(&key, value)?);
+        }
+        let grading = m
+            .grading
+            .iter()
+            .enumerate()
+            .map(|(i, g)| self.grading(&format!("mesh.grading[{i}]"), g, domain, bodies))
+            .collect::<Result<Vec<_>, _>>()?;
+        Ok(MeshControls {
+            size,
+            part_sizes,
+            grading,
+            min_angle_deg: self.min_angle(m.min_angle)?,
+            max_triangles: self.max_triangles(m.max_triangles)?,
+        })
+    }
+
+    fn min_angle(&self, raw: Option<Sp<f64>>) -> Result<f64, CaseError> {
+        let Some(a) = raw else { return Ok(DEFAULT_MIN_ANGLE_DEG) };
+        let v = *a.get_ref();
+        if v > 0.0 && v <= 33.0 {
+            Ok(v)
+        } else {
+            Err(CaseError::MinAngle { at: self.site("mesh.min_angle", a.span()), value: v })
+        }
+    }
+
+    fn max_triangles(&self, raw: Option<Sp<i64>>) -> Result<usize, CaseError> {
+        let Some(n) = raw else { return Ok(DEFAULT_MAX_TRIANGLES) };
+        match usize::try_from(*n.get_ref()) {
+            Ok(v) if v >= 1 => Ok(v),
+            _ => Err(CaseError::Count {
+                at: self.site("mesh.max_triangles", n.span()),
+                count: *n.get_ref(),
+                expected: "it must be at least 1",
+            }),
+        }
+    }
+
+    fn grading(
+        &self,
+        key: &str,
+        g: &Sp<RawGrading>,
+        domain: &Domain,
+        bodies: &[Body],
+    ) -> Result<Grading, CaseError> {
+        let r = g.get_ref();
+        let h_min = self.positive(&format!("{key}.h_min"), &r.h_min)?;
+        let growth = match &r.growth {
+            Some(v) => self.positive(&format!("{key}.growth"), v)?,
+            None => DEFAULT_GROWTH,
+        };
+        let point = match (r.at, r.near, &r.trailing_edge) {
+            (Some(p), None, None) => p,
+            (None, Some(p), None) => nearest_vertex(domain, p),
+            (None, None, Some(name)) => self.trailing_edge(key, g.span(), name, bodies)?,
+            _ => {
+                let message = "give exactly one of `at = [x, y]`, `near = [x, y]` or `trailing_edge = \"body\"`".into();
+                return Err(CaseError::Schema { at: self.site(key, g.span()), message });
+            }
+        };
+        Ok(Grading { point, h_min, growth })
+    }
+
+    fn trailing_edge(
+        &self,
+        key: &str,
+        span: Range<usize>,
+        name: &str,
+        bodies: &[Body],
+    ) -> Result<Point, CaseError> {
+        let at = self.site(format!("{key}.trailing_edge"), span);
+        let Some(body) = bodies.iter().find(|b| b.name == name) else {
+            let known = bodies.iter().map(|b| b.name.as_str()).collect::<Vec<_>>().join(", ");
+            return Err(CaseError::UnknownBody { at, body: name.to_string(), known });
+        };
+        body.trailing_edge.ok_or_else(|| CaseError::NoTrailingEdge { at, body: name.to_string() })
+    }
+
+    fn model(&self, raw: RawModel) -> Result<Model, CaseError> {
+        let equations = match raw.equations {
+            RawEquations::Stokes => Equations::Stokes,
+            RawEquations::NavierStokes => Equations::NavierStokes,
+        };
+        let viscous_form = match raw.viscous_form {
+            RawViscousForm::Gradient => ViscousForm::Gradient,
+            RawViscousForm::Symmetric => ViscousForm::Symmetric,
+        };
+        let time = raw.time.map(|t| self.time(t.into_inner())).transpose()?;
+        Ok(Model { equations, viscous_form, time })
+    }
+
+    fn time(&self, t: RawTime) -> Result<TimeStepping, CaseError> {
+        let dt = self.positive("model.time.dt", &t.dt)?;
+        let t_end = self.positive("model.time.t_end", &t.t_end)?;
+        let write_every = match t.write_every {
+            None => 1,
+            Some(w) => match usize::try_from(*w.get_ref()) {
+                Ok(v) if v >= 1 => v,
+                _ => {
+                    let at = self.site("model.time.write_every", w.span());
+                    return Err(CaseError::Count {
+                        at,
+                        count: *w.get_ref(),
+                        expected: "it must be at least 1",
+                    });
+                }
+            },
+        };
+        Ok(TimeStepping { dt, t_end, write_every })
+    }
+
+    fn forces(
+        &self,
+        raw: Option<Sp<Vec<String>>>,
+        domain: &Domain,
+        bodies: &[Body],
+    ) -> Result<Vec<PartId>, CaseError> {
+        let Some(list) = raw else {
+            let ids: BTreeSet<PartId> = bodies.iter().map(|b| b.part).collect();
+            return Ok(ids.into_iter().collect());
+        };
+        let span = list.span();
+        let mut ids = Vec::new();
+        for name in list.get_ref() {
+            let sp = Sp::new(span.clone(), name.clone());
+            let id = self.part_id("report.forces", &sp, domain)?;
+            if !ids.contains(&id) {
+                ids.push(id);
+            }
+        }
+        Ok(ids)
+    }
+
+    fn exact(&self, e: Sp<RawExact>) -> Result<ExactSolution, CaseError> {
+        let e = e.into_inner();
+        Ok(ExactSolution {
+            u: self.expr("exact.u", &e.u)?,
+            v: self.expr("exact.v", &e.v)?,
+            p: self.expr("exact.p", &e.p)?,
+        })
+    }
+
+    fn body_force(&self, f: Sp<RawBodyForce>) -> Result<[ScalarExpr; 2], CaseError> {
+        let f = f.into_inner();
+        Ok([self.expr("body_force.fx", &f.fx)?, self.expr("body_force.fy", &f.fy)?])
+    }
+
+    fn output(&self, o: RawOutput) -> Output {
+        Output {
+            directory: self.folder.join(o.directory),
+            mesh: o.mesh,
+            solution: o.solution,
+            compress: o.compress,
+        }
+    }
+}
+
+/// Drops a last point that repeats the first one exactly (the loop closes itself).
+fn drop_closing_point(mut points: Vec<Point>) -> Vec<Point> {
+    if points.len() > 3 && points.first() == points.last() {
+        points.pop();
+    }
+    points
+}
+
+/// Diagonal of the bounding box of `points`.
+fn diagonal(points: &[Point]) -> f64 {
+    let (mut lo, mut hi) = ([f64::INFINITY; 2], [f64::NEG_INFINITY; 2]);
+    for p in points {
+        for k in 0..2 {
+            lo[k] = lo[k].min(p[k]);
+            hi[k] = hi[k].max(p[k]);
+        }
+    }
+    (hi[0] - lo[0]).hypot(hi[1] - lo[1])
+}
+
+/// The domain vertex (any loop) nearest to `p`.
+fn nearest_vertex(domain: &Domain, p: Point) -> Point {
+    let d2 = |q: &Point| (q[0] - p[0]).powi(2) + (q[1] - p[1]).powi(2);
+    domain
+        .loops()
+        .flat_map(|l| l.points.iter())
+        .min_by(|a, b| d2(a).total_cmp(&d2(b)))
+        .copied()
+        .unwrap_or(p)
+}
