@@ -501,3 +501,49 @@ fn wedge_plate_example_reads_its_body_from_the_coordinate_file() {
     assert!((case.fluid.kinematic_viscosity - 0.02).abs() < 1e-18);
     assert_eq!(case.mesh.grading[0].point, [1.0, 0.0]);
 }
+
+#[test]
+fn body_may_not_share_a_part_with_the_outer_boundary() {
+    let (e, msg) = fails(&with("name = \"box\"", "name = \"box\"\npart = \"bottom\""));
+    assert!(matches!(e, CaseError::BodyPartOnOuter { ref part, .. } if part == "bottom"), "{e:?}");
+    assert!(msg.contains("domain.bodies[0].part"), "{msg}");
+}
+
+#[test]
+fn non_finite_points_are_rejected() {
+    let probe = "[report]\nprobes = [{ name = \"p\", at = [nan, 0.5] }]\n[mesh]";
+    let (e, msg) = fails(&with("[mesh]", probe));
+    assert!(matches!(e, CaseError::Schema { .. }), "{e:?}");
+    assert!(msg.contains("report.probes[0].at") && msg.contains(":29:"), "{msg}");
+    let body = "points = [[1.0, 0.5], [2.0, 0.5], [inf, 1.0]]";
+    let (e, _) = fails(&with(BOX_POINTS, body));
+    assert!(matches!(e, CaseError::Polygon { defect: LoopDefect::NonFinite(2), .. }), "{e:?}");
+}
+
+#[test]
+fn time_step_longer_than_the_run_is_rejected() {
+    let (e, msg) = fails(&with("[mesh]", "[model.time]\ndt = 2.0\nt_end = 1.0\n[mesh]"));
+    assert!(matches!(e, CaseError::Schema { .. }), "{e:?}");
+    assert!(msg.contains("model.time.dt") && msg.contains("t_end"), "{msg}");
+}
+
+#[test]
+fn naca_point_count_is_bounded() {
+    for n in ["4", "-3", "1000000000"] {
+        let naca = format!(
+            "naca = {{ digits = \"0012\", leading_edge = [1.0, 0.7], points_per_side = {n} }}"
+        );
+        let (e, msg) = fails(&with(BOX_POINTS, &naca));
+        assert!(matches!(e, CaseError::Naca { .. }), "{n}: {e:?}");
+        assert!(msg.contains("points_per_side"), "{msg}");
+    }
+}
+
+#[test]
+fn error_site_exposes_file_line_and_key() {
+    let (e, _) = fails(&with("density = 1.0", "density = -1.0"));
+    let site = e.site().expect("a located error");
+    assert_eq!(site.file, PathBuf::from("cases/test.toml"));
+    assert_eq!(site.key, "fluid.density");
+    assert_eq!(site.position, Some((3, 11)));
+}

@@ -46,11 +46,8 @@ pub(super) fn build(text: &str, origin: &Path) -> Result<Case, CaseError> {
         name: raw.name.map(|n| n.into_inner()).or(default_name).unwrap_or_else(|| "case".into()),
         source: origin.to_path_buf(),
         forces: cx.forces(raw.report.forces, &domain, &bodies)?,
-        probes: raw.report.probes.into_iter().map(|p| p.into_inner()).map(probe).collect(),
-        pressure_difference: raw.report.pressure_difference.map(|s| {
-            let [first, second] = s.into_inner();
-            PressureDifference { first, second }
-        }),
+        probes: cx.probes(raw.report.probes)?,
+        pressure_difference: cx.pressure_difference(raw.report.pressure_difference)?,
         exact: raw.exact.map(|e| cx.exact(e)).transpose()?,
         body_force: raw.body_force.map(|f| cx.body_force(f)).transpose()?,
         output: cx.output(raw.output),
@@ -61,10 +58,6 @@ pub(super) fn build(text: &str, origin: &Path) -> Result<Case, CaseError> {
         conditions,
         model,
     })
-}
-
-fn probe(p: RawProbe) -> Probe {
-    Probe { name: p.name, point: p.at }
 }
 
 /// The file being read: its text (for line numbers), path and folder.
@@ -206,7 +199,8 @@ impl<'a> Context<'a> {
         for (i, sp) in raw.bodies.into_iter().enumerate() {
             let key = format!("domain.bodies[{i}]");
             let span = sp.span();
-            let (hole, body) = self.body(&key, sp.into_inner(), &mut parts, tol)?;
+            let (hole, body) =
+                self.body(&key, sp.into_inner(), (&outer, &bodies), &mut parts, tol)?;
             self.check_placement(&key, span, &outer, &holes, &hole, tol)?;
             holes.push(hole);
             bodies.push(body);
@@ -310,18 +304,24 @@ impl<'a> Context<'a> {
         &self,
         key: &str,
         b: RawBody,
+        (outer, seen): (&BoundaryLoop, &[Body]),
         parts: &mut Parts,
         tol: f64,
     ) -> Result<(BoundaryLoop, Body), CaseError> {
         let name = b.name.get_ref().clone();
-        if parts.names.contains(&name) && b.part.is_none() {
+        if seen.iter().any(|s| s.name == name) {
             let at = self.site(format!("{key}.name"), b.name.span());
             return Err(CaseError::DuplicateBody { at, name });
+        }
+        let part_name = b.part.as_deref().unwrap_or(&name);
+        if outer.edge_parts.iter().any(|&id| parts.names[id] == part_name) {
+            let at = self.site(format!("{key}.part"), b.name.span());
+            return Err(CaseError::BodyPartOnOuter { at, part: part_name.to_string() });
         }
         let (points, circle, trailing_edge, shape_key, span) = self.body_shape(key, &b)?;
         let points = drop_closing_point(points);
         self.check_polygon(&shape_key, &points, tol, span)?;
-        let part = parts.id(b.part.as_deref().unwrap_or(&name));
+        let part = parts.id(part_name);
         let edge_parts = vec![part; points.len()];
         let mut hole = BoundaryLoop { name: name.clone(), points, edge_parts, circle };
         orient(&mut hole, Orientation::Clockwise);
@@ -574,8 +574,10 @@ impl<'a> Context<'a> {
             None => DEFAULT_GROWTH,
         };
         let point = match (r.at, r.near, &r.trailing_edge) {
-            (Some(p), None, None) => p,
-            (None, Some(p), None) => nearest_vertex(domain, p),
+            (Some(p), None, None) => self.finite_point(&format!("{key}.at"), g.span(), p)?,
+            (None, Some(p), None) => {
+                nearest_vertex(domain, self.finite_point(&format!("{key}.near"), g.span(), p)?)
+            }
             (None, None, Some(name)) => self.trailing_edge(key, g.span(), name, bodies)?,
             _ => {
                 let message = "give exactly one of `at = [x, y]`, `near = [x, y]` or `trailing_edge = \"body\"`".into();
@@ -616,6 +618,10 @@ impl<'a> Context<'a> {
     fn time(&self, t: RawTime) -> Result<TimeStepping, CaseError> {
         let dt = self.positive("model.time.dt", &t.dt)?;
         let t_end = self.positive("model.time.t_end", &t.t_end)?;
+        if dt > t_end {
+            let message = format!("time step dt = {dt} is longer than t_end = {t_end}");
+            return Err(CaseError::Schema { at: self.site("model.time.dt", t.dt.span()), message });
+        }
         let write_every = match t.write_every {
             None => 1,
             Some(w) => match usize::try_from(*w.get_ref()) {
@@ -653,6 +659,39 @@ impl<'a> Context<'a> {
             }
         }
         Ok(ids)
+    }
+
+    /// Rejects points with a non-finite coordinate (TOML allows `nan` and `inf`).
+    fn finite_point(&self, key: &str, span: Range<usize>, p: Point) -> Result<Point, CaseError> {
+        if p.iter().all(|v| v.is_finite()) {
+            return Ok(p);
+        }
+        let message = format!("point {p:?} has a non-finite coordinate");
+        Err(CaseError::Schema { at: self.site(key, span), message })
+    }
+
+    fn probes(&self, raw: Vec<Sp<RawProbe>>) -> Result<Vec<Probe>, CaseError> {
+        raw.into_iter()
+            .enumerate()
+            .map(|(i, sp)| {
+                let span = sp.span();
+                let p = sp.into_inner();
+                let point = self.finite_point(&format!("report.probes[{i}].at"), span, p.at)?;
+                Ok(Probe { name: p.name, point })
+            })
+            .collect()
+    }
+
+    fn pressure_difference(
+        &self,
+        raw: Option<Sp<[[f64; 2]; 2]>>,
+    ) -> Result<Option<PressureDifference>, CaseError> {
+        let Some(sp) = raw else { return Ok(None) };
+        let key = "report.pressure_difference";
+        let [a, b] = *sp.get_ref();
+        let first = self.finite_point(key, sp.span(), a)?;
+        let second = self.finite_point(key, sp.span(), b)?;
+        Ok(Some(PressureDifference { first, second }))
     }
 
     fn exact(&self, e: Sp<RawExact>) -> Result<ExactSolution, CaseError> {

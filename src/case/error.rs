@@ -85,6 +85,10 @@ pub enum CaseError {
     PartCount { at: Box<Site>, given: usize, edges: usize },
     #[error("{at}: a second body is called `{name}`; body names must be unique")]
     DuplicateBody { at: Box<Site>, name: String },
+    #[error(
+        "{at}: part `{part}` belongs to the outer boundary; a body needs a part of its own (set `part = \"…\"`)"
+    )]
+    BodyPartOnOuter { at: Box<Site>, part: String },
     #[error("{at}: body `{body}` lies (partly) outside the outer boundary")]
     BodyOutside { at: Box<Site>, body: String },
     #[error(
@@ -118,7 +122,10 @@ impl CaseError {
             Count { at, .. } | Expression { at, .. } | CoordinateFile { at, .. } => at,
             Polygon { at, .. } | Naca { at, .. } | BodyShape { at, .. } => at,
             OuterShape { at } | Rectangle { at, .. } | PartCount { at, .. } => at,
-            DuplicateBody { at, .. } | BodyOutside { at, .. } | BodyTouchesOuter { at, .. } => at,
+            DuplicateBody { at, .. }
+            | BodyPartOnOuter { at, .. }
+            | BodyOutside { at, .. }
+            | BodyTouchesOuter { at, .. } => at,
             BodiesOverlap { at, .. } | MissingCondition { at, .. } | UnknownPart { at, .. } => at,
             UnknownBody { at, .. } | NoTrailingEdge { at, .. } => at,
         };

@@ -23,6 +23,8 @@ pub const THICKNESS_COEFFICIENTS: [f64; 5] = [0.2969, -0.1260, -0.3516, 0.2843, 
 
 /// The smallest accepted number of stations per surface.
 pub const MIN_POINTS_PER_SIDE: usize = 5;
+/// The largest accepted number of stations per surface.
+pub const MAX_POINTS_PER_SIDE: usize = 100_000;
 
 /// A NACA 4-digit profile placed in the plane.
 #[derive(Clone, Debug, PartialEq)]
@@ -55,8 +57,10 @@ pub enum NacaError {
     CamberWithoutPosition(String),
     #[error("thickness must be between 1 and 99 percent of the chord, got `{0}`")]
     BadThickness(String),
-    #[error("{0} points per side is too few (at least {MIN_POINTS_PER_SIDE})")]
-    TooFewPoints(usize),
+    #[error(
+        "points_per_side = {0} is out of range ({MIN_POINTS_PER_SIDE} to {MAX_POINTS_PER_SIDE})"
+    )]
+    PointCount(usize),
     #[error("chord must be positive and finite, got {0}")]
     BadChord(f64),
 }
@@ -105,11 +109,11 @@ impl NacaProfile {
     /// trailing edge and one at the leading edge; `2 (points_per_side − 1)` points in all.
     ///
     /// # Errors
-    /// [`NacaError::TooFewPoints`] or [`NacaError::BadChord`].
+    /// [`NacaError::PointCount`] or [`NacaError::BadChord`].
     pub fn points(&self) -> Result<Vec<Point>, NacaError> {
         let n = self.points_per_side;
-        if n < MIN_POINTS_PER_SIDE {
-            return Err(NacaError::TooFewPoints(n));
+        if !(MIN_POINTS_PER_SIDE..=MAX_POINTS_PER_SIDE).contains(&n) {
+            return Err(NacaError::PointCount(n));
         }
         if !(self.chord.is_finite() && self.chord > 0.0) {
             return Err(NacaError::BadChord(self.chord));
