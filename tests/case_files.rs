@@ -547,3 +547,25 @@ fn error_site_exposes_file_line_and_key() {
     assert_eq!(site.key, "fluid.density");
     assert_eq!(site.position, Some((3, 11)));
 }
+
+#[test]
+fn key_paths_reach_into_array_tables_and_inline_tables() {
+    // A second body whose inline `naca` table has a misspelt key and a wrong value type.
+    let second = "[[domain.bodies]]\nname = \"w\"\nnaca = { digits = \"0012\", chord = 0.5, leading_edge = [2.5, 1.0], pointz = 3 }\n\n[conditions.bottom]";
+    let (e, msg) = fails(&with("[conditions.bottom]", second));
+    assert!(matches!(e, CaseError::UnknownKey { .. }), "{e:?}");
+    assert!(msg.contains("domain.bodies[1].naca.pointz") && msg.contains(":17:"), "{msg}");
+    let second = "[[domain.bodies]]\nname = \"w\"\nnaca = { digits = \"0012\", chord = \"long\" }\n\n[conditions.bottom]";
+    let (e, msg) = fails(&with("[conditions.bottom]", second));
+    assert!(matches!(e, CaseError::Schema { .. }), "{e:?}");
+    assert!(msg.contains("domain.bodies[1].naca.chord"), "{msg}");
+}
+
+#[test]
+fn array_rows_are_not_mistaken_for_table_headers() {
+    // A multi-line point list: its rows start with `[`, yet the key after it is in [domain.outer].
+    let multi = "points = [\n  [0.0, 0.0],\n  [4.0, 0.0],\n  [4.0, 2.0],\n  [0.0, 2.0],\n]\nedge_partz = []";
+    let (e, msg) = fails(&with("rectangle = [0.0, 0.0, 4.0, 2.0]", multi));
+    assert!(matches!(e, CaseError::UnknownKey { .. }), "{e:?}");
+    assert!(msg.contains("`domain.outer.edge_partz`") && msg.contains(":15:"), "{msg}");
+}

@@ -106,16 +106,25 @@ impl<'a> Context<'a> {
         (line, before[line_start..].chars().count() + 1)
     }
 
-    /// The `[table]` header in force at byte `offset` (empty at the top level).
+    /// The key path of the table in force at byte `offset`: the last `[table]` or
+    /// `[[array]]` header (with the array index), then any inline tables `key = {` still open
+    /// on the current line. Empty at the top level. A best-effort scan for messages only.
     fn table_at(&self, offset: usize) -> String {
         let before = self.text.get(..offset.min(self.text.len())).unwrap_or("");
-        before
-            .lines()
-            .rev()
-            .map(str::trim)
-            .find(|l| l.starts_with('['))
-            .map(|l| l.trim_matches(|c| c == '[' || c == ']').trim().to_string())
-            .unwrap_or_default()
+        let mut path = String::new();
+        if let Some(header) = before.lines().rev().map(str::trim).find(|l| is_header(l)) {
+            let name = header.trim_matches(|c| c == '[' || c == ']').trim();
+            path = name.to_string();
+            if header.starts_with("[[") {
+                let count = before.lines().filter(|l| l.trim() == header).count();
+                path = format!("{name}[{}]", count.saturating_sub(1));
+            }
+        }
+        let line = &before[before.rfind('\n').map_or(0, |i| i + 1)..];
+        for key in open_inline_tables(line) {
+            path = if path.is_empty() { key } else { format!("{path}.{key}") };
+        }
+        path
     }
 
     fn deserialize(&self) -> Result<RawCase, CaseError> {
@@ -142,13 +151,14 @@ impl<'a> Context<'a> {
         CaseError::Schema { at: self.error_site(e.span(), key), message }
     }
 
-    /// The key of a plain `key = value` line whose value starts at byte `offset`; `None` for
-    /// values inside inline tables or arrays, whose key path this simple scan cannot know.
+    /// The key of the `key = value` pair (on its own line or in an inline table) whose value
+    /// starts at byte `offset`; `None` when the value sits inside an array.
     fn key_on_line(&self, offset: usize) -> Option<String> {
         let before = self.text.get(..offset.min(self.text.len()))?;
         let prefix = &before[before.rfind('\n').map_or(0, |i| i + 1)..];
-        let key = prefix.trim_end().strip_suffix('=')?.trim();
-        let plain = !key.is_empty() && !key.contains(['{', '[', ',', '"', '\'']);
+        let key = prefix.trim_end().strip_suffix('=')?;
+        let key = key.rsplit([',', '{']).next().unwrap_or("").trim();
+        let plain = !key.is_empty() && !key.contains(['[', '"', '\'']);
         plain.then(|| key.to_string())
     }
 
@@ -716,6 +726,39 @@ impl<'a> Context<'a> {
             compress: o.compress,
         }
     }
+}
+
+/// True for a table header line such as `[mesh]` or `[[domain.bodies]]` (not an array row).
+fn is_header(line: &str) -> bool {
+    let line = line.split('#').next().unwrap_or("").trim();
+    let name = line.trim_start_matches('[').trim_end_matches(']').trim();
+    line.starts_with('[')
+        && line.ends_with(']')
+        && name.starts_with(|c: char| c.is_ascii_alphabetic() || c == '"' || c == '_')
+        && name.chars().all(|c| c.is_ascii_alphanumeric() || "_-.\" ".contains(c))
+}
+
+/// Keys of the inline tables (`key = {`) still open at the end of `line`, outermost first.
+fn open_inline_tables(line: &str) -> Vec<String> {
+    let mut stack = Vec::new();
+    let mut segment_start = 0;
+    for (i, c) in line.char_indices() {
+        match c {
+            '{' => {
+                let segment = &line[segment_start..i];
+                let key = segment.rsplit_once('=').map_or("", |(k, _)| k);
+                stack.push(key.trim().rsplit([',', '{']).next().unwrap_or("").trim().to_string());
+                segment_start = i + 1;
+            }
+            '}' => {
+                stack.pop();
+                segment_start = i + 1;
+            }
+            ',' => segment_start = i + 1,
+            _ => {}
+        }
+    }
+    stack
 }
 
 /// Drops a last point that repeats the first one exactly (the loop closes itself).
