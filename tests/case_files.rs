@@ -569,3 +569,17 @@ fn array_rows_are_not_mistaken_for_table_headers() {
     assert!(matches!(e, CaseError::UnknownKey { .. }), "{e:?}");
     assert!(msg.contains("`domain.outer.edge_partz`") && msg.contains(":15:"), "{msg}");
 }
+
+#[test]
+fn documented_expression_functions_evaluate() {
+    // docs/case-format.md promises these operators and functions.
+    let text = with(
+        "ux = \"y * (2 - y)\"",
+        "ux = \"sin(x) + cos(y) + exp(t) + sqrt(4) + abs(-2) + 2^3 - 1/2\"",
+    );
+    let case = Case::parse(&text, origin()).unwrap();
+    let left = case.domain.part_id("left").unwrap();
+    let BoundaryCondition::Velocity { ux, .. } = &case.conditions[left] else { panic!("left") };
+    // sin 0 + cos 0 + e^0 + 2 + 2 + 8 − 0.5 = 13.5, exact in floating point.
+    assert_eq!(ux.eval(0.0, 0.0, 0.0), 13.5);
+}
