@@ -583,3 +583,28 @@ fn documented_expression_functions_evaluate() {
     // sin 0 + cos 0 + e^0 + 2 + 2 + 8 − 0.5 = 13.5, exact in floating point.
     assert_eq!(ux.eval(0.0, 0.0, 0.0), 13.5);
 }
+
+#[test]
+fn outer_boundary_needs_exactly_one_shape_and_matching_part_keys() {
+    let (e, msg) = fails(&with("rectangle = [0.0, 0.0, 4.0, 2.0]\n", ""));
+    assert!(matches!(e, CaseError::OuterShape { .. }), "{e:?}");
+    assert!(msg.contains("domain.outer") && msg.contains(":8:"), "{msg}");
+    let both = "rectangle = [0.0, 0.0, 4.0, 2.0]\npoints = [[0.0, 0.0], [4.0, 0.0], [4.0, 2.0]]";
+    let (e, _) = fails(&with("rectangle = [0.0, 0.0, 4.0, 2.0]", both));
+    assert!(matches!(e, CaseError::OuterShape { .. }), "{e:?}");
+    // `edge_parts` would be silently ignored next to a rectangle: rejected instead.
+    let stray = "rectangle = [0.0, 0.0, 4.0, 2.0]\nedge_parts = [\"a\", \"b\", \"c\", \"d\"]";
+    let (e, msg) = fails(&with("rectangle = [0.0, 0.0, 4.0, 2.0]", stray));
+    assert!(matches!(e, CaseError::Schema { .. }) && msg.contains("edge_parts"), "{msg}");
+}
+
+#[test]
+fn rectangle_sides_default_and_may_share_names() {
+    let sides = "rectangle = [0.0, 0.0, 4.0, 2.0]\nsides = { top = \"bottom\", left = \"inlet\" }";
+    let mut text = with("rectangle = [0.0, 0.0, 4.0, 2.0]", sides);
+    text = text.replacen("[conditions.top]\nkind = \"no-slip\"\n", "", 1);
+    text = text.replacen("[conditions.left]", "[conditions.inlet]", 1);
+    let case = Case::parse(&text, origin()).unwrap();
+    assert_eq!(case.domain.part_names, ["bottom", "right", "inlet", "box"]);
+    assert_eq!(case.domain.outer.edge_parts, vec![0, 1, 0, 2]);
+}

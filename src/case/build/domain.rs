@@ -91,6 +91,15 @@ impl Context<'_> {
     fn outer(&self, raw: Sp<RawOuter>, parts: &mut Parts) -> Result<BoundaryLoop, CaseError> {
         let span = raw.span();
         let o = raw.into_inner();
+        let misplaced = match (&o.rectangle, &o.points) {
+            (Some(_), _) if o.edge_parts.is_some() => Some("`edge_parts` goes with `points`"),
+            (_, Some(_)) if o.sides.is_some() => Some("`sides` goes with `rectangle`"),
+            _ => None,
+        };
+        if let Some(what) = misplaced {
+            let message = format!("{what}, not with the other outer shape");
+            return Err(CaseError::Schema { at: self.site("domain.outer", span), message });
+        }
         let (points, names) = match (o.rectangle, o.points) {
             (Some(r), None) => self.rectangle_outer(r, o.sides)?,
             (None, Some(p)) => {
