@@ -86,7 +86,6 @@ pub struct Body {
 
 /// Which equations are solved.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
-#[non_exhaustive]
 pub enum Equations {
     #[default]
     Stokes,

@@ -253,4 +253,16 @@ mod tests {
         // The inscribed polygon misses area between stations, so the error shrinks with refinement.
         assert!(errors[0] > errors[1] && errors[1] > errors[2], "errors {errors:?}");
     }
+
+    #[test]
+    fn common_sections_give_simple_loops_at_any_resolution() {
+        use crate::geometry::validate::check_loop;
+        for digits in ["0006", "0012", "0021", "2412", "4412", "4415", "6409", "2424"] {
+            for n in [5, 11, 41, 161, 1001] {
+                let pts = profile(digits, n).points().unwrap();
+                // Tolerance 1e-10 chord: the one the case builder uses (relative to the domain).
+                assert_eq!(check_loop(&pts, 1e-10), Ok(()), "NACA {digits}, {n} per side");
+            }
+        }
+    }
 }
