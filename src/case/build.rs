@@ -291,11 +291,15 @@ impl<'a> Context<'a> {
     }
 
     fn max_triangles(&self, raw: Option<Sp<i64>>) -> Result<usize, CaseError> {
-        let Some(n) = raw else { return Ok(DEFAULT_MAX_TRIANGLES) };
+        raw.map_or(Ok(DEFAULT_MAX_TRIANGLES), |n| self.at_least_one("mesh.max_triangles", &n))
+    }
+
+    /// An integer count that must be at least 1.
+    fn at_least_one(&self, key: &str, n: &Sp<i64>) -> Result<usize, CaseError> {
         match usize::try_from(*n.get_ref()) {
             Ok(v) if v >= 1 => Ok(v),
             _ => Err(CaseError::Count {
-                at: self.site("mesh.max_triangles", n.span()),
+                at: self.site(key, n.span()),
                 count: *n.get_ref(),
                 expected: "it must be at least 1",
             }),
@@ -364,19 +368,9 @@ impl<'a> Context<'a> {
             let message = format!("time step dt = {dt} is longer than t_end = {t_end}");
             return Err(CaseError::Schema { at: self.site("model.time.dt", t.dt.span()), message });
         }
-        let write_every = match t.write_every {
+        let write_every = match &t.write_every {
             None => 1,
-            Some(w) => match usize::try_from(*w.get_ref()) {
-                Ok(v) if v >= 1 => v,
-                _ => {
-                    let at = self.site("model.time.write_every", w.span());
-                    return Err(CaseError::Count {
-                        at,
-                        count: *w.get_ref(),
-                        expected: "it must be at least 1",
-                    });
-                }
-            },
+            Some(w) => self.at_least_one("model.time.write_every", w)?,
         };
         Ok(TimeStepping { dt, t_end, write_every })
     }

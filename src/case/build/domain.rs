@@ -245,12 +245,7 @@ impl Context<'_> {
         let at = || self.site(key, n.span());
         let (m, p, t) =
             parse_designation(&r.digits).map_err(|source| CaseError::Naca { at: at(), source })?;
-        if !(r.chord.is_finite() && r.chord > 0.0) {
-            return Err(CaseError::NotPositive {
-                at: self.site(format!("{key}.chord"), n.span()),
-                value: r.chord,
-            });
-        }
+        self.positive(&format!("{key}.chord"), &Sp::new(n.span(), r.chord))?;
         let count = usize::try_from(r.points_per_side).unwrap_or(0);
         let le = r.leading_edge;
         let profile = NacaProfile {
@@ -273,12 +268,7 @@ impl Context<'_> {
         p: &Sp<RawPolygon>,
     ) -> Result<(Vec<Point>, Option<Circle>), CaseError> {
         let r = p.get_ref();
-        if !(r.radius.is_finite() && r.radius > 0.0) {
-            return Err(CaseError::NotPositive {
-                at: self.site(format!("{key}.radius"), p.span()),
-                value: r.radius,
-            });
-        }
+        self.positive(&format!("{key}.radius"), &Sp::new(p.span(), r.radius))?;
         if !(3..=100_000).contains(&r.sides) {
             let at = self.site(format!("{key}.sides"), p.span());
             return Err(CaseError::Count {
