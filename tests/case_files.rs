@@ -237,6 +237,12 @@ fn non_positive_physical_values_are_rejected() {
             "size = 0.1\n[[mesh.grading]]\nat = [1.0, 0.5]\nh_min = 0",
             "mesh.grading[0].h_min",
         ),
+        (BOX_POINTS, "naca = { digits = \"0012\", chord = -1.0 }", "domain.bodies[0].naca.chord"),
+        (
+            BOX_POINTS,
+            "polygon = { center = [1.5, 0.7], radius = 0.0, sides = 8 }",
+            "domain.bodies[0].polygon.radius",
+        ),
     ];
     for (from, to, key) in cases {
         let (e, msg) = fails(&with(from, to));
@@ -607,4 +613,16 @@ fn rectangle_sides_default_and_may_share_names() {
     let case = Case::parse(&text, origin()).unwrap();
     assert_eq!(case.domain.part_names, ["bottom", "right", "inlet", "box"]);
     assert_eq!(case.domain.outer.edge_parts, vec![0, 1, 0, 2]);
+}
+
+#[test]
+fn regular_polygon_bodies_need_three_or_more_sides() {
+    let poly = "polygon = { center = [1.5, 0.7], radius = 0.2, sides = 2 }";
+    let (e, msg) = fails(&with(BOX_POINTS, poly));
+    assert!(matches!(e, CaseError::Count { count: 2, .. }), "{e:?}");
+    assert!(msg.contains("domain.bodies[0].polygon.sides"), "{msg}");
+    let circle = "polygon = { center = [1.5, 0.7], radius = 0.2, sides = 64, circle = true }";
+    let case = Case::parse(&with(BOX_POINTS, circle), origin()).unwrap();
+    assert_eq!(case.domain.holes[0].circle.unwrap().radius, 0.2);
+    assert_eq!(case.domain.holes[0].points.len(), 64);
 }
