@@ -7,6 +7,10 @@
 //!
 //! **Invariant:** the geometry module never sees mesh sizes or boundary-condition values.
 
+pub mod naca;
+pub mod shapes;
+pub mod validate;
+
 /// A point in the plane, `[x, y]`.
 pub type Point = [f64; 2];
 
