@@ -40,7 +40,10 @@ use crate::mesh::Mesh;
 
 /// Force exerted by the fluid on a boundary part (per unit depth), in the mesh axes.
 ///
-/// `total = pressure + viscous + inertial`.
+/// `total = pressure + viscous + inertial`. Only `total` is the same physical quantity in
+/// both forms: the volume form's parts are its volume terms, e.g. its `pressure` part
+/// `ρ(p, div w)` also contains `−ρ(∇p, w)` over the cells next to the part, which the
+/// viscous term balances. Compare the splits only within one form.
 #[derive(Clone, Debug, Default, PartialEq, serde::Serialize)]
 pub struct Force {
     /// Pressure part `ρ ∫ p n_Ω` (surface form) or `ρ (p, div w)` (volume form).
@@ -119,12 +122,26 @@ pub fn surface_force(
     fluid: &FluidProperties,
     part: PartId,
 ) -> Result<Force, PostError> {
+    surface_force_on_parts(mesh, field, fluid, &[part])
+}
+
+/// Force on the union of `parts` (e.g. the upper and lower sides of a profile) by the surface
+/// form; equal to the sum of the parts' surface forces.
+///
+/// # Errors
+/// As [`surface_force`], plus [`PostError::NoParts`] for an empty list.
+pub fn surface_force_on_parts(
+    mesh: &Mesh,
+    field: &FlowField,
+    fluid: &FluidProperties,
+    parts: &[PartId],
+) -> Result<Force, PostError> {
     check_field(mesh, field)?;
     fluid.validate()?;
-    check_part(mesh, part)?;
+    let in_set = part_set(mesh, parts)?;
     let mut force = Force::default();
     for (index, be) in mesh.boundary_edges.iter().enumerate() {
-        if be.part != part {
+        if !in_set.get(be.part).copied().unwrap_or(false) {
             continue;
         }
         let frame = EdgeFrame::new(mesh, index)?;
@@ -160,16 +177,32 @@ pub fn volume_force(
     part: PartId,
     terms: &VolumeForceTerms<'_>,
 ) -> Result<Force, PostError> {
+    volume_force_on_parts(mesh, field, fluid, &[part], terms)
+}
+
+/// Force on the union of `parts` by the volume form, with `ψ_S = 1` at every node of every
+/// listed part (so nodes shared between listed parts are not end nodes). Use this, not the
+/// sum of per-part volume forces, for a body made of several parts.
+///
+/// # Errors
+/// As [`volume_force`], plus [`PostError::NoParts`] for an empty list.
+pub fn volume_force_on_parts(
+    mesh: &Mesh,
+    field: &FlowField,
+    fluid: &FluidProperties,
+    parts: &[PartId],
+    terms: &VolumeForceTerms<'_>,
+) -> Result<Force, PostError> {
     check_field(mesh, field)?;
     fluid.validate()?;
-    check_part(mesh, part)?;
+    let in_set = part_set(mesh, parts)?;
     if let Some(b) = terms.convecting_velocity {
         check_nodal(mesh, b, "convecting velocity")?;
     }
     if let Some(dt) = terms.time_derivative {
         check_nodal(mesh, dt, "time derivative")?;
     }
-    let marked = part_nodes(mesh, part);
+    let marked = part_nodes(mesh, &in_set);
     let mut force = Force::default();
     for cell in 0..mesh.n_cells() {
         if mesh.cells[cell].iter().any(|&n| marked[n]) {
@@ -177,7 +210,7 @@ pub fn volume_force(
         }
     }
     if terms.end_nodes == EndNodeRule::SubtractNeighbourTraction {
-        add_neighbour_traction(mesh, field, fluid, part, &marked, &mut force)?;
+        add_neighbour_traction(mesh, field, fluid, &in_set, &marked, &mut force)?;
     }
     for k in 0..2 {
         force.total[k] = force.pressure[k] + force.viscous[k] + force.inertial[k];
@@ -213,10 +246,23 @@ pub fn coefficients(
     Ok(ForceCoefficients { drag: force.total[0] / q, lift: force.total[1] / q })
 }
 
-/// `true` for every mesh node (vertex or midpoint) on an edge of `part`.
-fn part_nodes(mesh: &Mesh, part: PartId) -> Vec<bool> {
+/// Membership mask over all part ids; checks that each listed part exists and is non-empty.
+fn part_set(mesh: &Mesh, parts: &[PartId]) -> Result<Vec<bool>, PostError> {
+    if parts.is_empty() {
+        return Err(PostError::NoParts);
+    }
+    let mut in_set = vec![false; mesh.part_names.len()];
+    for &part in parts {
+        check_part(mesh, part)?;
+        in_set[part] = true;
+    }
+    Ok(in_set)
+}
+
+/// `true` for every mesh node (vertex or midpoint) on an edge of a part in the set.
+fn part_nodes(mesh: &Mesh, in_set: &[bool]) -> Vec<bool> {
     let mut marked = vec![false; mesh.nodes.len()];
-    for be in mesh.boundary_edges.iter().filter(|e| e.part == part) {
+    for be in mesh.boundary_edges.iter().filter(|e| in_set.get(e.part).copied().unwrap_or(false)) {
         for &n in &be.nodes {
             marked[n] = true;
         }
@@ -299,13 +345,13 @@ fn add_neighbour_traction(
     mesh: &Mesh,
     field: &FlowField,
     fluid: &FluidProperties,
-    part: PartId,
+    in_set: &[bool],
     marked: &[bool],
     force: &mut Force,
 ) -> Result<(), PostError> {
     for (index, be) in mesh.boundary_edges.iter().enumerate() {
         let [a, b, m] = be.nodes;
-        if be.part == part || !(marked[a] || marked[b] || marked[m]) {
+        if in_set.get(be.part).copied().unwrap_or(false) || !(marked[a] || marked[b] || marked[m]) {
             continue;
         }
         let frame = EdgeFrame::new(mesh, index)?;

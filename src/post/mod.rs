@@ -38,7 +38,7 @@ mod wall;
 pub use fields::{divergence_error, pressure_at_nodes, speed, vorticity};
 pub use forces::{
     EndNodeRule, Force, ForceCoefficients, ReferenceScales, VolumeForceTerms, coefficients,
-    surface_force, volume_force,
+    surface_force, surface_force_on_parts, volume_force, volume_force_on_parts,
 };
 pub use probe::{PointLocator, PointValue, evaluate_in_cell, locate};
 pub use streamfunction::stream_function;
@@ -78,6 +78,8 @@ pub enum PostError {
     InvalidParameter { name: &'static str, value: f64, reason: &'static str },
     #[error("boundary edge {edge} ({a}, {b}) is not an edge of its cell {cell}")]
     InconsistentMesh { edge: usize, a: usize, b: usize, cell: usize },
+    #[error("no boundary part was given")]
+    NoParts,
     #[error("the mesh has no cells")]
     EmptyMesh,
     #[error("stream-function solve failed: {reason}")]
