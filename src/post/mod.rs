@@ -78,6 +78,8 @@ pub enum PostError {
     InvalidParameter { name: &'static str, value: f64, reason: &'static str },
     #[error("boundary edge {edge} ({a}, {b}) is not an edge of its cell {cell}")]
     InconsistentMesh { edge: usize, a: usize, b: usize, cell: usize },
+    #[error("point ({x}, {y}) lies outside the mesh")]
+    PointOutsideMesh { x: f64, y: f64 },
     #[error("no boundary part was given")]
     NoParts,
     #[error("the mesh has no cells")]

@@ -145,6 +145,28 @@ impl<'m> PointLocator<'m> {
             .collect()
     }
 
+    /// Kinematic pressure difference `p(front) − p(back)` (multiply by `ρ` for a pressure),
+    /// as in the DFG benchmark's `Δp = p(0.15, 0.2) − p(0.25, 0.2)`.
+    ///
+    /// # Errors
+    /// [`PostError`] when the field does not match the mesh, or
+    /// [`PostError::PointOutsideMesh`] when a point lies outside the mesh.
+    ///
+    /// # References
+    /// Schäfer & Turek (1996), definition of `Δp`.
+    pub fn pressure_difference(
+        &self,
+        field: &FlowField,
+        front: Point,
+        back: Point,
+    ) -> Result<f64, PostError> {
+        let values = self.probe(field, &[front, back])?;
+        let value = |v: &Option<PointValue>, x: Point| {
+            v.as_ref().map(|v| v.pressure).ok_or(PostError::PointOutsideMesh { x: x[0], y: x[1] })
+        };
+        Ok(value(&values[0], front)? - value(&values[1], back)?)
+    }
+
     /// Bucket indices of a point, clamped to the grid (points outside fall in a border
     /// bucket and are then rejected by the barycentric test).
     fn bucket_of(&self, p: Point) -> (usize, usize) {
@@ -195,4 +217,37 @@ fn bounding_box(points: &[Point]) -> (Point, Point) {
         ([f64::INFINITY, f64::INFINITY], [f64::NEG_INFINITY, f64::NEG_INFINITY]),
         |(lo, hi), p| ([lo[0].min(p[0]), lo[1].min(p[1])], [hi[0].max(p[0]), hi[1].max(p[1])]),
     )
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::mesh::structured::rectangle;
+
+    #[test]
+    fn vertices_and_far_points_are_handled() {
+        let mesh = rectangle([0.0, 0.0], [2.0, 1.0], 4, 3, |_, _| [0.1, -0.1]).unwrap();
+        let locator = PointLocator::new(&mesh).unwrap();
+        // Every mesh node lies in (the closure of) some cell, with a barycentric coordinate
+        // equal to 1 at vertices; the tolerance is a few rounding errors (1e-14).
+        for (n, &x) in mesh.nodes.iter().enumerate() {
+            let (c, l) = locator.locate(x).unwrap_or_else(|| panic!("node {n} not found"));
+            let back = cell_triangle(&mesh, c).point(l);
+            assert!((back[0] - x[0]).abs() < 1e-14 && (back[1] - x[1]).abs() < 1e-14);
+        }
+        for far in [[1e300, 0.5], [-1e300, -1e300], [f64::INFINITY, 0.0]] {
+            assert!(locator.locate(far).is_none());
+        }
+    }
+
+    #[test]
+    fn out_of_range_cell_is_a_typed_error() {
+        let mesh = rectangle([0.0, 0.0], [1.0, 1.0], 2, 2, |_, _| [0.0, 0.0]).unwrap();
+        let field = FlowField {
+            velocity: vec![[0.0; 2]; mesh.nodes.len()],
+            pressure: vec![0.0; mesh.n_vertices],
+        };
+        let r = evaluate_in_cell(&mesh, &field, 99, [1.0, 0.0, 0.0]);
+        assert!(matches!(r, Err(PostError::InvalidParameter { name: "cell", .. })));
+    }
 }

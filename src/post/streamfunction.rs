@@ -32,6 +32,12 @@ use crate::mesh::Mesh;
 /// (e.g. a mesh made of several disconnected pieces).
 pub fn stream_function(mesh: &Mesh, field: &FlowField) -> Result<Vec<f64>, PostError> {
     check_field(mesh, field)?;
+    let pieces = connected_pieces(mesh);
+    if pieces != 1 {
+        return Err(PostError::StreamFunction {
+            reason: format!("the mesh has {pieces} disconnected pieces; ψ needs one pin per piece"),
+        });
+    }
     let pin = mesh.boundary_edges.first().map_or(0, |e| e.nodes[0]);
     // Unknown index of every node; the pinned node has none.
     let dof: Vec<Option<usize>> = (0..mesh.nodes.len())
@@ -56,6 +62,29 @@ pub fn stream_function(mesh: &Mesh, field: &FlowField) -> Result<Vec<f64>, PostE
         }),
         None => Ok(psi),
     }
+}
+
+/// Number of connected pieces of the mesh (cells sharing a vertex are connected), by
+/// union–find over the vertices; unused vertices do not count.
+fn connected_pieces(mesh: &Mesh) -> usize {
+    fn root(parent: &mut [usize], mut i: usize) -> usize {
+        while parent[i] != i {
+            parent[i] = parent[parent[i]];
+            i = parent[i];
+        }
+        i
+    }
+    let mut parent: Vec<usize> = (0..mesh.n_vertices).collect();
+    let mut used = vec![false; mesh.n_vertices];
+    for cell in &mesh.cells {
+        let r0 = root(&mut parent, cell[0]);
+        for &v in &cell[..3] {
+            used[v] = true;
+            let r = root(&mut parent, v);
+            parent[r] = r0;
+        }
+    }
+    (0..mesh.n_vertices).filter(|&v| used[v] && root(&mut parent, v) == v).count()
 }
 
 /// Stiffness triplets and right-hand side `(u, ∂φ/∂y) − (v, ∂φ/∂x)`.
@@ -102,4 +131,32 @@ fn assemble(
         }
     }
     (triplets, rhs)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn disconnected_mesh_is_a_typed_error() {
+        // Two separate triangles: the second piece has no pinned node, so the Neumann
+        // matrix is singular there and the solve must report it instead of returning junk.
+        let vertices = vec![[0.0, 0.0], [1.0, 0.0], [0.0, 1.0], [3.0, 0.0], [4.0, 0.0], [3.0, 1.0]];
+        let segments: Vec<([usize; 2], usize)> =
+            [[0, 1], [1, 2], [2, 0], [3, 4], [4, 5], [5, 3]].iter().map(|&s| (s, 0)).collect();
+        let mesh = Mesh::from_linear(
+            vertices,
+            &[[0, 1, 2], [3, 4, 5]],
+            &segments,
+            vec!["wall".into()],
+            vec![None],
+        )
+        .unwrap();
+        let field = FlowField {
+            velocity: vec![[1.0, 0.0]; mesh.nodes.len()],
+            pressure: vec![0.0; mesh.n_vertices],
+        };
+        let err = stream_function(&mesh, &field).unwrap_err();
+        assert!(err.to_string().contains("2 disconnected pieces"), "{err}");
+    }
 }

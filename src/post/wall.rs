@@ -224,3 +224,43 @@ impl Sampler<'_> {
         s
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::fem::ViscousForm;
+    use crate::mesh::structured::rectangle;
+
+    #[test]
+    fn a_part_in_two_pieces_gives_two_chains_with_continuing_arc_length() {
+        // Give the top side the bottom's part id: one part, two open chains of 3 edges each.
+        let mut mesh = rectangle([0.0, 0.0], [3.0, 1.0], 3, 2, |_, _| [0.0, 0.0]).unwrap();
+        for be in mesh.boundary_edges.iter_mut().filter(|e| e.part == 2) {
+            be.part = 0;
+        }
+        let chains = part_chains(&mesh, 0);
+        assert_eq!(chains.iter().map(Vec::len).collect::<Vec<_>>(), vec![3, 3]);
+        let field = FlowField {
+            velocity: vec![[0.0; 2]; mesh.nodes.len()],
+            pressure: vec![0.0; mesh.n_vertices],
+        };
+        let fluid = FluidProperties { density: 1.0, viscosity: 1.0, form: ViscousForm::Gradient };
+        let rows = wall_distribution(&mesh, &field, &fluid, 0, &WallReference::new(1.0)).unwrap();
+        assert_eq!(rows.len(), 2 * 7);
+        // The second chain starts where the first ended (s = 3) and runs from x = 3 to 0.
+        assert_eq!((rows[7].chain, rows[7].s, rows[7].x, rows[7].y), (1, 3.0, 3.0, 1.0));
+        assert_eq!((rows[13].s, rows[13].x), (6.0, 0.0));
+    }
+
+    #[test]
+    fn invalid_reference_velocity_is_a_typed_error() {
+        let mesh = rectangle([0.0, 0.0], [1.0, 1.0], 2, 2, |_, _| [0.0, 0.0]).unwrap();
+        let field = FlowField {
+            velocity: vec![[0.0; 2]; mesh.nodes.len()],
+            pressure: vec![0.0; mesh.n_vertices],
+        };
+        let fluid = FluidProperties { density: 1.0, viscosity: 1.0, form: ViscousForm::Gradient };
+        let r = wall_distribution(&mesh, &field, &fluid, 1, &WallReference::new(0.0));
+        assert!(matches!(r, Err(PostError::InvalidParameter { name: "reference velocity", .. })));
+    }
+}
