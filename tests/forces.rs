@@ -486,6 +486,9 @@ fn wall_distribution_closes_a_body_chain() {
     assert!(rows.iter().all(|r| r.chain == 0));
     let (first, last) = (&rows[0], &rows[rows.len() - 1]);
     assert_eq!((first.x, first.y), (last.x, last.y));
+    // A closed chain starts at its first edge in boundary-edge order.
+    let start = mesh.boundary_edges.iter().find(|e| e.part == 1).unwrap().nodes[0];
+    assert_eq!([first.x, first.y], mesh.nodes[start]);
     // Perimeter of the 0.25 × 0.25 square body.
     assert!((last.s - 1.0).abs() < 1e-14);
     assert!(rows.windows(2).all(|w| w[1].s > w[0].s));

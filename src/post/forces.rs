@@ -21,6 +21,19 @@
 //! form; [`EndNodeRule::Raw`] keeps the plain residual. On a closed body (no end nodes) both
 //! rules give the same number and no surface integral is used at all.
 //!
+//! **Sign.** `F` is the force of the fluid on the body or wall, `F = −∫_S σ n_Ω dS`; the
+//! volume form follows from the identity above with the same sign, `F_k = −ρ R(w_k)`. For
+//! plane Poiseuille flow `u = 4U y(H − y)/H²` in `+x`, both walls feel
+//! `F_x = +ρ (4νU/H) L` (the flow drags them downstream), and the bottom wall feels
+//! `F_y = −ρ ∫ p dx` (pressed outwards, away from the fluid), the top wall `+ρ ∫ p dx`. For
+//! a cylinder in a `+x` stream the drag `F_x` is positive, as in Schäfer & Turek (1996).
+//!
+//! **Consistency with the solver.** The volume form is most accurate when `R` is the
+//! solver's own discrete residual, which vanishes for every `w` that is zero on the boundary.
+//! This module uses the plain convective form `((b·∇)u, w)`; a solver that discretises
+//! convection differently (e.g. skew-symmetrically) gets a force that differs by that
+//! form's consistency error on the cells next to the part.
+//!
 //! # References
 //! V. John, G. Matthies, Int. J. Numer. Meth. Fluids 37 (2001) 885–903, and V. John,
 //! Int. J. Numer. Meth. Fluids 44 (2004) 777–788 (volume form of drag and lift).

@@ -121,14 +121,7 @@ fn part_chains(mesh: &Mesh, part: PartId) -> Vec<Vec<usize>> {
         if visited[first] {
             continue;
         }
-        // Walk back to the chain start (or all the way round a closed loop).
-        let mut start = first;
-        while let Some(&prev) = by_end.get(&mesh.boundary_edges[start].nodes[0]) {
-            if prev == first || visited[prev] {
-                break;
-            }
-            start = prev;
-        }
+        let start = chain_start(mesh, &by_end, &visited, first, edges.len());
         let mut chain = Vec::new();
         let mut e = start;
         while !visited[e] {
@@ -142,6 +135,27 @@ fn part_chains(mesh: &Mesh, part: PartId) -> Vec<Vec<usize>> {
         chains.push(chain);
     }
     chains
+}
+
+/// Walks back from `first` to the start of its chain: the first edge of an open chain, or
+/// `first` itself when the walk comes round a closed loop. At most `max_steps` steps, so a
+/// pinched boundary (a vertex with two incoming edges) cannot loop forever.
+fn chain_start(
+    mesh: &Mesh,
+    by_end: &HashMap<usize, usize>,
+    visited: &[bool],
+    first: usize,
+    max_steps: usize,
+) -> usize {
+    let mut start = first;
+    for _ in 0..max_steps {
+        match by_end.get(&mesh.boundary_edges[start].nodes[0]) {
+            Some(&prev) if prev == first => return first,
+            Some(&prev) if !visited[prev] => start = prev,
+            _ => break,
+        }
+    }
+    start
 }
 
 /// Kinematic pressure, traction `σ n_b` and wall shear at one edge point.
