@@ -35,7 +35,9 @@ mod probe;
 mod streamfunction;
 mod wall;
 
-pub use fields::{divergence_error, pressure_at_nodes, speed, vorticity};
+pub use fields::{
+    DerivedFields, derived_fields, divergence_error, pressure_at_nodes, speed, vorticity,
+};
 pub use forces::{
     EndNodeRule, Force, ForceCoefficients, ReferenceScales, VolumeForceTerms, coefficients,
     surface_force, surface_force_on_parts, volume_force, volume_force_on_parts,
