@@ -660,7 +660,8 @@ fn forces_of_a_smooth_stokes_solution_converge_and_the_end_correction_matters() 
     // −p(1) = 1/6 − SLOPE at the bottom corners, which do not cancel, so the raw volume form
     // has an O(h) spill-over error, SLOPE·h/6, while the corrected one does not.
     // Interpolants are not Galerkin solutions, so the volume form's superconvergence
-    // (John & Matthies 2001) is not expected here: both forms should show O(h²).
+    // (John & Matthies 2001) is not expected here: both forms inherit the O(h²) gradient
+    // error of the P2 interpolant (Brenner & Scott 2008, Thm 4.4.20; from memory).
     let exact = [1.0 / 15.0, -SLOPE / 2.0];
     let props = FluidProperties { density: 1.0, viscosity: 1.0, form: ViscousForm::Gradient };
     let f = donea_huerta_force;
@@ -676,8 +677,8 @@ fn forces_of_a_smooth_stokes_solution_converge_and_the_end_correction_matters() 
             err(volume_force(&mesh, &field, &props, 0, &raw).unwrap().total),
         ]
     };
-    // Measured errors (surface, corrected volume, raw volume) for n = 8, 16, 32:
-    // 2.9e-3, 7.9e-4, 2.1e-4 | 2.6e-3, 6.6e-4, 1.7e-4 | 2.1e-2, 1.0e-2, 5.2e-3.
+    // Measured errors for n = 8, 16, 32: surface 2.9e-3, 7.9e-4, 2.1e-4; corrected volume
+    // 2.6e-3, 6.6e-4, 1.7e-4; raw volume 2.1e-2, 1.0e-2, 5.2e-3.
     let (coarse, fine) = (errors(8), errors(16));
     let rate = |k: usize| (coarse[k] / fine[k]).log2();
     // Second order with a margin of 0.2 below the ideal 2.
