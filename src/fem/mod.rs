@@ -28,3 +28,8 @@ pub struct FlowField {
     /// Kinematic pressure `p/ρ` per mesh vertex (`mesh.n_vertices` entries).
     pub pressure: Vec<f64>,
 }
+
+pub mod assembly;
+pub mod dofs;
+pub mod kernels;
+pub mod norms;

@@ -1,1 +1,295 @@
-//! placeholder
+//! Steady Stokes solver: boundary conditions, Taylor–Hood assembly and a sparse direct solve.
+//!
+//! Takes a [`Mesh`] and a [`StokesProblem`] (viscosity, boundary condition per part, body
+//! force, viscous form, time for time-dependent data); returns the discrete [`FlowField`]
+//! and a [`SolveInfo`] with sizes, stage timings and the achieved residual.
+//!
+//! Equations (kinematic form, `p` = pressure/ρ): `−ν Δu + ∇p = f`, `div u = 0`. Weak form:
+//! find `u ∈ P2²`, `p ∈ P1` with `a(u, v) − (p, div v) = (f, v)` and `−(q, div u) = 0`, so
+//! the matrix `[[A, Bᵀ], [B, 0]]` is symmetric. Dirichlet velocities are eliminated (rows
+//! and columns) with their values moved to the right-hand side; slip nodes are rotated to
+//! tangential coordinates (see [`boundary`]).
+//!
+//! Stages, each reusable by a later Navier–Stokes solver: [`resolve_boundary`] →
+//! [`stokes_dof_map`] → [`SystemPattern::new`] → [`assemble_stokes`] (or
+//! [`crate::fem::assembly::assemble`] with any kernel on the same pattern) →
+//! [`SymbolicSystem::analyse`] (once per pattern) → [`SymbolicSystem::factorize`] →
+//! [`SymbolicSystem::solve`].
+//!
+//! **Pressure level.** With no outflow part the pressure is determined up to a constant: one
+//! interior pressure unknown is pinned to zero and the result is shifted to zero mean
+//! ([`SolveInfo::pressure_fixed`] is then true). The prescribed velocities must then carry
+//! no net flux, otherwise [`SolveError::IncompatibleFlux`].
+//!
+//! **Invariant:** no I/O; progress and measurements leave through [`SolveInfo`].
+
+pub mod boundary;
+pub mod linear;
+
+use std::time::{Duration, Instant};
+
+use crate::case::{BoundaryCondition, ScalarExpr};
+use crate::fem::assembly::{AssembledSystem, Parallelism, PatternError, SystemPattern, assemble};
+use crate::fem::dofs::DofMap;
+use crate::fem::kernels::stokes_local_system;
+use crate::fem::shape::AffineTriangle;
+use crate::fem::{FlowField, ViscousForm};
+use crate::mesh::Mesh;
+
+pub use boundary::{BoundaryConstraints, BoundaryFlux, boundary_flux, resolve_boundary};
+pub use linear::{
+    LinearParams, NumericFactor, RefinementInfo, Regularization, SolverKind, SymbolicSystem,
+};
+
+/// A steady Stokes problem on a mesh whose part ids index `conditions`.
+#[derive(Clone, Copy, Debug)]
+pub struct StokesProblem<'a> {
+    /// Kinematic viscosity ν > 0.
+    pub viscosity: f64,
+    /// Boundary condition of every part, indexed by part id.
+    pub conditions: &'a [BoundaryCondition],
+    /// Body force `f = (f_x, f_y)` as expressions in `x, y, t`, or none.
+    pub body_force: Option<&'a [ScalarExpr; 2]>,
+    pub viscous_form: ViscousForm,
+    /// Time at which time-dependent boundary data and forces are evaluated.
+    pub time: f64,
+}
+
+/// Solver settings. Defaults: `LDLᵀ`, dynamic regularisation, rayon assembly, sequential
+/// factorisation, relative residual target `1e-10`, at most 5 refinement steps, flux
+/// tolerance `1e-8`.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct SolverParams {
+    pub kind: SolverKind,
+    pub regularization: Regularization,
+    /// Parallelism of the assembly of local matrices.
+    pub parallelism: Parallelism,
+    /// Parallelism of the factorisation and solves (`Serial` measured faster on 2 cores).
+    pub factor_parallelism: Parallelism,
+    /// Relative residual `‖b − A x‖₂ / ‖b‖₂` the refined solution must reach.
+    pub residual_target: f64,
+    pub max_refinement_steps: usize,
+    /// In a closed domain, the largest accepted `|∮ u·n| / ∮ |u·n|` of the prescribed
+    /// velocity (interpolated data of a divergence-free field carries a small mismatch).
+    pub flux_tolerance: f64,
+}
+
+impl Default for SolverParams {
+    fn default() -> Self {
+        let linear = LinearParams::default();
+        SolverParams {
+            kind: linear.kind,
+            regularization: linear.regularization,
+            parallelism: Parallelism::Rayon,
+            factor_parallelism: Parallelism::Serial,
+            residual_target: linear.residual_target,
+            max_refinement_steps: linear.max_refinement_steps,
+            flux_tolerance: 1e-8,
+        }
+    }
+}
+
+impl SolverParams {
+    /// The settings of the linear-solve stage.
+    pub fn linear(&self) -> LinearParams {
+        LinearParams {
+            kind: self.kind,
+            regularization: self.regularization,
+            parallelism: self.factor_parallelism,
+            residual_target: self.residual_target,
+            max_refinement_steps: self.max_refinement_steps,
+        }
+    }
+}
+
+/// Wall-clock time of each stage.
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+pub struct StageTimings {
+    /// Boundary resolution, dof numbering, pattern and position map.
+    pub pattern: Duration,
+    pub assembly: Duration,
+    pub symbolic: Duration,
+    pub numeric: Duration,
+    /// First solve plus refinement.
+    pub solve: Duration,
+}
+
+/// What a Stokes solve did.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct SolveInfo {
+    pub n_velocity_dofs: usize,
+    pub n_pressure_dofs: usize,
+    /// Stored entries of the (full, both triangles) system matrix.
+    pub nnz: usize,
+    pub timings: StageTimings,
+    pub refinement_steps: usize,
+    pub relative_residual: f64,
+    /// True when no part fixes the pressure level: one pressure was pinned and the result
+    /// shifted to zero mean.
+    pub pressure_fixed: bool,
+    /// Net and absolute flux of the prescribed velocity (checked in closed domains).
+    pub boundary_flux: BoundaryFlux,
+}
+
+/// Why a Stokes solve failed.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[non_exhaustive]
+pub enum SolveError {
+    #[error("viscosity must be positive and finite, got {value}")]
+    InvalidViscosity { value: f64 },
+    #[error("the mesh has no cells")]
+    EmptyMesh,
+    #[error("boundary part `{part}` has no boundary condition")]
+    MissingCondition { part: String },
+    #[error(
+        "slip part `{part}` is not straight (relative deviation {deviation:e}); slip is supported on straight parts only"
+    )]
+    SlipPartNotStraight { part: String, deviation: f64 },
+    #[error("velocity on part `{part}` at ({x}, {y}) is not finite: {value:?}")]
+    NonFiniteBoundaryValue { part: String, x: f64, y: f64, value: [f64; 2] },
+    #[error("body force is not finite somewhere in the domain")]
+    NonFiniteBodyForce,
+    #[error(
+        "prescribed velocities carry a net flux {flux:e} (∮|u·n| = {absolute:e}) through a closed domain; incompressible flow needs zero"
+    )]
+    IncompatibleFlux { flux: f64, absolute: f64 },
+    #[error(transparent)]
+    Pattern(#[from] PatternError),
+    #[error("{stage} factorization failed: {reason}")]
+    Factorization { stage: &'static str, reason: String },
+    #[error("solution is not finite after {steps} refinement steps (numerically singular system)")]
+    NonFiniteSolution { steps: usize },
+    #[error(
+        "relative residual {relative_residual:e} above target {target:e} after {steps} refinement steps"
+    )]
+    NotConverged { relative_residual: f64, target: f64, steps: usize },
+}
+
+/// Solves the steady Stokes problem on `mesh`.
+///
+/// # Errors
+/// Any [`SolveError`]: invalid viscosity, empty mesh, missing or invalid boundary data,
+/// incompatible flux in a closed domain, failed factorisation, non-finite solution or a
+/// missed residual target.
+///
+/// # References
+/// C. Taylor, P. Hood, Computers & Fluids 1 (1973) 73–100 (the element; from memory).
+pub fn solve_stokes(
+    mesh: &Mesh,
+    problem: &StokesProblem,
+    params: &SolverParams,
+) -> Result<(FlowField, SolveInfo), SolveError> {
+    if !(problem.viscosity > 0.0 && problem.viscosity.is_finite()) {
+        return Err(SolveError::InvalidViscosity { value: problem.viscosity });
+    }
+    if mesh.cells.is_empty() {
+        return Err(SolveError::EmptyMesh);
+    }
+    let mut timings = StageTimings::default();
+    let start = Instant::now();
+    let constraints = resolve_boundary(mesh, problem.conditions, problem.time)?;
+    let (dofs, flux) = stokes_dof_map(mesh, &constraints, params.flux_tolerance)?;
+    let pattern = SystemPattern::new(mesh, dofs)?;
+    timings.pattern = start.elapsed();
+
+    let start = Instant::now();
+    let system = assemble_stokes(&pattern, mesh, problem, params.parallelism)?;
+    timings.assembly = start.elapsed();
+
+    let linear = params.linear();
+    let start = Instant::now();
+    let symbolic = SymbolicSystem::analyse(&pattern, linear.kind)?;
+    timings.symbolic = start.elapsed();
+    let start = Instant::now();
+    let factor = symbolic.factorize(&pattern, &system.values, &linear)?;
+    timings.numeric = start.elapsed();
+    let start = Instant::now();
+    let (x, refinement) =
+        symbolic.solve(&pattern, &system.values, &factor, &system.rhs, &linear)?;
+    timings.solve = start.elapsed();
+
+    let field = expand_field(mesh, pattern.dofs(), &x);
+    let info = SolveInfo {
+        n_velocity_dofs: pattern.dofs().n_velocity_dofs(),
+        n_pressure_dofs: pattern.dofs().n_pressure_dofs(),
+        nnz: pattern.nnz(),
+        timings,
+        refinement_steps: refinement.steps,
+        relative_residual: refinement.relative_residual,
+        pressure_fixed: pattern.dofs().pinned_pressure().is_some(),
+        boundary_flux: flux,
+    };
+    Ok((field, info))
+}
+
+/// Numbers the unknowns for the given constraints. In a closed domain (no outflow part) the
+/// boundary flux is checked and one pressure unknown is pinned: the first vertex off the
+/// boundary (vertex 0 if every vertex is on it).
+///
+/// # Errors
+/// [`SolveError::IncompatibleFlux`] when `|∮ u·n| > flux_tolerance · ∮ |u·n|` in a closed
+/// domain.
+pub fn stokes_dof_map(
+    mesh: &Mesh,
+    constraints: &BoundaryConstraints,
+    flux_tolerance: f64,
+) -> Result<(DofMap, BoundaryFlux), SolveError> {
+    let flux = boundary_flux(mesh, &constraints.nodes);
+    if constraints.pressure_level_free {
+        return Ok((DofMap::new(mesh, &constraints.nodes, None), flux));
+    }
+    if flux.net.abs() > flux_tolerance * flux.absolute {
+        return Err(SolveError::IncompatibleFlux { flux: flux.net, absolute: flux.absolute });
+    }
+    let mut on_boundary = vec![false; mesh.n_vertices];
+    for edge in &mesh.boundary_edges {
+        on_boundary[edge.nodes[0]] = true;
+        on_boundary[edge.nodes[1]] = true;
+    }
+    let pin = on_boundary.iter().position(|b| !b).unwrap_or(0);
+    Ok((DofMap::new(mesh, &constraints.nodes, Some(pin)), flux))
+}
+
+/// Assembles the Stokes matrix and right-hand side on `pattern`.
+///
+/// # Errors
+/// [`SolveError::NonFiniteBodyForce`] when the body force evaluates to NaN or ±∞ at a
+/// quadrature point (the right-hand side is then not finite).
+pub fn assemble_stokes(
+    pattern: &SystemPattern,
+    mesh: &Mesh,
+    problem: &StokesProblem,
+    parallelism: Parallelism,
+) -> Result<AssembledSystem, SolveError> {
+    let time = problem.time;
+    let force_closure = problem
+        .body_force
+        .map(|[fx, fy]| move |x: f64, y: f64| [fx.eval(x, y, time), fy.eval(x, y, time)]);
+    let force: Option<&(dyn Fn(f64, f64) -> [f64; 2] + Sync)> =
+        force_closure.as_ref().map(|f| f as &(dyn Fn(f64, f64) -> [f64; 2] + Sync));
+    let system = assemble(pattern, mesh, parallelism, |cell, local| {
+        let tri = AffineTriangle::new(mesh.cell_vertices(cell));
+        stokes_local_system(&tri, problem.viscosity, problem.viscous_form, force, local);
+    });
+    if system.rhs.iter().any(|v| !v.is_finite()) {
+        return Err(SolveError::NonFiniteBodyForce);
+    }
+    Ok(system)
+}
+
+/// Builds the flow field from the solution vector; when the pressure was pinned, shifts it
+/// to zero mean `∫ p = 0` (P1 integral: `Σ_T |T| (p_0 + p_1 + p_2) / 3`).
+pub fn expand_field(mesh: &Mesh, dofs: &DofMap, x: &[f64]) -> FlowField {
+    let (velocity, mut pressure) = dofs.expand(x);
+    if dofs.pinned_pressure().is_some() {
+        let (mut integral, mut area) = (0.0, 0.0);
+        for (c, cell) in mesh.cells.iter().enumerate() {
+            let a = AffineTriangle::new(mesh.cell_vertices(c)).area;
+            integral += a * (pressure[cell[0]] + pressure[cell[1]] + pressure[cell[2]]) / 3.0;
+            area += a;
+        }
+        let mean = integral / area;
+        pressure.iter_mut().for_each(|p| *p -= mean);
+    }
+    FlowField { velocity, pressure }
+}

@@ -1,0 +1,253 @@
+//! Sparsity pattern and numeric assembly of the Taylor–Hood system.
+//!
+//! Takes a [`Mesh`] and a [`DofMap`]; [`SystemPattern::new`] builds the compressed-column
+//! (CSC) pattern of the full (both triangles stored) saddle-point matrix
+//! `[[A, Bᵀ], [B, 0]]` once, together with a position map from every element-local entry to
+//! its index in the CSC values. [`assemble`] then turns local systems into global values and a
+//! right-hand side by a pure scatter; local systems are computed serially or with rayon.
+//!
+//! The pattern holds every velocity–velocity and velocity–pressure coupling of a cell (so a
+//! nonsymmetric convection block fits the same pattern) and the pressure diagonal (for a
+//! static regularisation), but no off-diagonal pressure–pressure entry: local kernels must
+//! leave that block zero.
+//!
+//! **Invariant:** the pattern depends only on the mesh and the dof layout, never on values;
+//! numeric assembly never allocates per entry.
+
+use faer::sparse::SymbolicSparseColMatRef;
+use rayon::prelude::*;
+
+use crate::fem::dofs::{ComponentDof, DofMap};
+use crate::fem::kernels::{LOCAL_SIZE, LOCAL_VELOCITY, LocalSystem};
+use crate::mesh::Mesh;
+
+/// How local element matrices are computed.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub enum Parallelism {
+    /// One thread, elements in order.
+    #[default]
+    Serial,
+    /// Local matrices computed in parallel (rayon) in chunks, then scattered in element order.
+    Rayon,
+}
+
+/// Errors from pattern construction.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[non_exhaustive]
+pub enum PatternError {
+    #[error("the system has {nnz} nonzeros, more than the position map can index ({max})")]
+    TooLarge { nnz: usize, max: usize },
+}
+
+/// Marks a local entry that is not stored (eliminated unknown or pressure–pressure coupling).
+const NOT_STORED: u32 = u32::MAX;
+/// Entries per cell in the position map.
+const LOCAL_ENTRIES: usize = LOCAL_SIZE * LOCAL_SIZE;
+/// Cells per rayon work batch: bounds the buffer of local systems (about 4 MB).
+const BATCH: usize = 2048;
+
+/// The CSC pattern of the assembled system plus the element-to-value position map.
+#[derive(Clone, Debug)]
+pub struct SystemPattern {
+    dofs: DofMap,
+    col_ptr: Vec<usize>,
+    row_idx: Vec<usize>,
+    /// `positions[cell * 225 + i * 15 + j]`: index in the values of local entry `(i, j)`.
+    positions: Vec<u32>,
+    diagonal: Vec<usize>,
+}
+
+/// Assembled values on a [`SystemPattern`] and the right-hand side (eliminated values moved).
+#[derive(Clone, Debug, PartialEq)]
+pub struct AssembledSystem {
+    pub values: Vec<f64>,
+    pub rhs: Vec<f64>,
+}
+
+impl SystemPattern {
+    /// Builds the pattern and position map for `mesh` with the numbering `dofs`.
+    ///
+    /// # Errors
+    /// [`PatternError::TooLarge`] when the number of nonzeros does not fit the 32-bit position
+    /// map.
+    pub fn new(mesh: &Mesh, dofs: DofMap) -> Result<Self, PatternError> {
+        let (col_ptr, row_idx) = build_columns(mesh, &dofs);
+        let nnz = row_idx.len();
+        if nnz >= NOT_STORED as usize {
+            return Err(PatternError::TooLarge { nnz, max: NOT_STORED as usize - 1 });
+        }
+        let find = |row: usize, col: usize| {
+            let rows = &row_idx[col_ptr[col]..col_ptr[col + 1]];
+            rows.binary_search(&row).ok().map(|k| col_ptr[col] + k)
+        };
+        let mut positions = vec![NOT_STORED; mesh.cells.len() * LOCAL_ENTRIES];
+        positions.par_chunks_mut(LOCAL_ENTRIES).zip(mesh.cells.par_iter()).for_each(|(p, cell)| {
+            let local = dofs.cell_dofs(cell);
+            for (i, di) in local.iter().enumerate() {
+                for (j, dj) in local.iter().enumerate() {
+                    if let (ComponentDof::Free { dof: r, .. }, ComponentDof::Free { dof: c, .. }) =
+                        (di, dj)
+                    {
+                        let pp = i >= LOCAL_VELOCITY && j >= LOCAL_VELOCITY && r != c;
+                        if !pp {
+                            p[i * LOCAL_SIZE + j] = find(*r, *c).map_or(NOT_STORED, |k| k as u32);
+                        }
+                    }
+                }
+            }
+        });
+        let diagonal = (0..dofs.n_dofs()).map(|d| find(d, d).unwrap_or(usize::MAX)).collect();
+        Ok(SystemPattern { dofs, col_ptr, row_idx, positions, diagonal })
+    }
+
+    /// The dof numbering the pattern was built for.
+    pub fn dofs(&self) -> &DofMap {
+        &self.dofs
+    }
+
+    /// Size of the (square) system.
+    pub fn n(&self) -> usize {
+        self.dofs.n_dofs()
+    }
+
+    /// Number of stored entries.
+    pub fn nnz(&self) -> usize {
+        self.row_idx.len()
+    }
+
+    /// Column pointers of the CSC pattern.
+    pub fn col_ptr(&self) -> &[usize] {
+        &self.col_ptr
+    }
+
+    /// Row indices of the CSC pattern (sorted within each column).
+    pub fn row_idx(&self) -> &[usize] {
+        &self.row_idx
+    }
+
+    /// Index in the values of the diagonal entry of unknown `dof`.
+    pub fn diagonal_position(&self, dof: usize) -> usize {
+        self.diagonal[dof]
+    }
+
+    /// The pattern as a faer symbolic matrix view (no copy).
+    pub fn symbolic(&self) -> SymbolicSparseColMatRef<'_, usize> {
+        SymbolicSparseColMatRef::new_checked(self.n(), self.n(), &self.col_ptr, None, &self.row_idx)
+    }
+
+    /// `y = A x` for values `values` on this pattern.
+    pub fn multiply(&self, values: &[f64], x: &[f64], y: &mut [f64]) {
+        y.iter_mut().for_each(|v| *v = 0.0);
+        for (col, &xc) in x.iter().enumerate() {
+            for k in self.col_ptr[col]..self.col_ptr[col + 1] {
+                y[self.row_idx[k]] += values[k] * xc;
+            }
+        }
+    }
+
+    /// Scatters one local system of `cell` into `out` (see the module docs).
+    fn scatter(&self, mesh: &Mesh, cell: usize, local: &LocalSystem, out: &mut AssembledSystem) {
+        let dofs = self.dofs.cell_dofs(&mesh.cells[cell]);
+        let positions = &self.positions[cell * LOCAL_ENTRIES..(cell + 1) * LOCAL_ENTRIES];
+        for (i, di) in dofs.iter().enumerate() {
+            let ComponentDof::Free { dof: row, weight: wi } = *di else { continue };
+            let mut load = local.load[i];
+            for (j, dj) in dofs.iter().enumerate() {
+                let k = local.matrix[i][j];
+                match *dj {
+                    ComponentDof::Fixed(value) => load -= k * value,
+                    ComponentDof::Free { weight: wj, .. } => {
+                        let p = positions[i * LOCAL_SIZE + j];
+                        if p != NOT_STORED {
+                            out.values[p as usize] += wi * wj * k;
+                        }
+                    }
+                }
+            }
+            out.rhs[row] += wi * load;
+        }
+    }
+}
+
+/// Assembles the global values and right-hand side on `pattern`.
+///
+/// `kernel(cell, local)` must overwrite `local` with the local system of `cell` (see
+/// [`crate::fem::kernels`] for the local numbering). Local entries of eliminated unknowns move
+/// to the right-hand side with their known values; free entries are scattered with the
+/// weights of the [`DofMap`].
+///
+/// Both parallelism modes scatter in element order, so they give identical sums.
+pub fn assemble(
+    pattern: &SystemPattern,
+    mesh: &Mesh,
+    parallelism: Parallelism,
+    kernel: impl Fn(usize, &mut LocalSystem) + Sync,
+) -> AssembledSystem {
+    let mut out = AssembledSystem { values: vec![0.0; pattern.nnz()], rhs: vec![0.0; pattern.n()] };
+    match parallelism {
+        Parallelism::Serial => {
+            let mut local = LocalSystem::default();
+            for cell in 0..mesh.cells.len() {
+                kernel(cell, &mut local);
+                pattern.scatter(mesh, cell, &local, &mut out);
+            }
+        }
+        Parallelism::Rayon => {
+            let mut buffer = vec![LocalSystem::default(); BATCH];
+            for start in (0..mesh.cells.len()).step_by(BATCH) {
+                let end = (start + BATCH).min(mesh.cells.len());
+                let batch = &mut buffer[..end - start];
+                batch.par_iter_mut().enumerate().for_each(|(k, local)| kernel(start + k, local));
+                for (k, local) in batch.iter().enumerate() {
+                    pattern.scatter(mesh, start + k, local, &mut out);
+                }
+            }
+        }
+    }
+    out
+}
+
+/// Builds the CSC columns: for each unknown, the sorted unknowns of every cell that touches
+/// it (pressure columns keep only velocity rows and their own diagonal).
+fn build_columns(mesh: &Mesh, dofs: &DofMap) -> (Vec<usize>, Vec<usize>) {
+    let n = dofs.n_dofs();
+    let free = |cell: &[usize; 6]| {
+        dofs.cell_dofs(cell).into_iter().filter_map(|d| match d {
+            ComponentDof::Free { dof, .. } => Some(dof),
+            ComponentDof::Fixed(_) => None,
+        })
+    };
+    // Incidence unknown -> cells, in CSR form.
+    let mut start = vec![0usize; n + 1];
+    for cell in &mesh.cells {
+        free(cell).for_each(|d| start[d + 1] += 1);
+    }
+    for d in 0..n {
+        start[d + 1] += start[d];
+    }
+    let mut fill = start.clone();
+    let mut cells_of = vec![0usize; start[n]];
+    for (c, cell) in mesh.cells.iter().enumerate() {
+        for d in free(cell) {
+            cells_of[fill[d]] = c;
+            fill[d] += 1;
+        }
+    }
+    let mut col_ptr = Vec::with_capacity(n + 1);
+    let mut row_idx = Vec::new();
+    let mut rows = Vec::new();
+    col_ptr.push(0);
+    for col in 0..n {
+        rows.clear();
+        rows.push(col);
+        for &c in &cells_of[start[col]..start[col + 1]] {
+            let keep = |r: &usize| !(dofs.is_pressure(col) && dofs.is_pressure(*r));
+            rows.extend(free(&mesh.cells[c]).filter(keep));
+        }
+        rows.sort_unstable();
+        rows.dedup();
+        row_idx.extend_from_slice(&rows);
+        col_ptr.push(row_idx.len());
+    }
+    (col_ptr, row_idx)
+}

@@ -1,0 +1,337 @@
+//! Sparse direct solution of the assembled saddle-point system with iterative refinement.
+//!
+//! Takes a [`SystemPattern`] (analysed once: fill-reducing ordering and symbolic
+//! factorisation) and, per solve, the matrix values and right-hand side; returns the solution
+//! of the free unknowns with the number of refinement steps and the achieved relative
+//! residual `‖b − A x‖₂ / ‖b‖₂`, always measured against the unregularised matrix.
+//!
+//! Two factorisations are offered:
+//! * [`SolverKind::Ldlt`] (default): faer's sparse `LDLᵀ` with AMD ordering for the symmetric
+//!   quasi-definite Stokes matrix, stabilised by dynamic regularisation (expected pivot signs
+//!   `+1` velocity / `−1` pressure) or a static `−δ I` on the pressure block.
+//! * [`SolverKind::Lu`]: faer's sparse LU (COLAMD + partial pivoting); needed for
+//!   nonsymmetric (Oseen / Newton) matrices on the same pattern.
+//!
+//! faer does not report numerical singularity, so the result is checked for finiteness and
+//! for the residual target.
+//!
+//! # References
+//! N.J. Higham, *Accuracy and Stability of Numerical Algorithms*, 2nd ed., SIAM 2002, ch. 12
+//! (iterative refinement; from memory). R.J. Vanderbei, *Symmetric quasidefinite matrices*,
+//! SIAM J. Optim. 5 (1995) 100–113 (stable `LDLᵀ` of regularised saddle points; from memory).
+
+use faer::dyn_stack::{MemBuffer, MemStack};
+use faer::linalg::cholesky::ldlt::factor::LdltRegularization;
+use faer::sparse::SparseColMatRef;
+use faer::sparse::linalg::cholesky::{
+    CholeskySymbolicParams, LdltRef, SymbolicCholesky, SymmetricOrdering,
+    factorize_symbolic_cholesky,
+};
+use faer::sparse::linalg::lu::{
+    LuRef, LuSymbolicParams, NumericLu, SymbolicLu, factorize_symbolic_lu,
+};
+use faer::{Conj, MatMut, Par, Side};
+
+use crate::fem::assembly::{Parallelism, SystemPattern};
+
+use super::SolveError;
+
+/// Which sparse factorisation is used.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub enum SolverKind {
+    /// Symmetric indefinite `LDLᵀ` (symmetric matrices only).
+    #[default]
+    Ldlt,
+    /// General LU (any nonsingular matrix).
+    Lu,
+}
+
+/// How the `LDLᵀ` factorisation is kept away from zero pivots. Values are relative to the
+/// pressure pivot scale `max |B_ij|² / max |A_ii|` (about `h²/ν`).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum Regularization {
+    /// Pivots of the wrong sign or below `epsilon` are replaced by `±delta` (signs `+1` for
+    /// velocity, `−1` for pressure); refinement removes the perturbation.
+    Dynamic { delta: f64, epsilon: f64 },
+    /// `−delta` is added to every pressure diagonal entry before factorising.
+    Static { delta: f64 },
+}
+
+impl Default for Regularization {
+    /// Dynamic, `delta = 1e-8`, `epsilon = 1e-11` (the settings measured in
+    /// `refs/solver-peers.md`, "Extra measurements").
+    fn default() -> Self {
+        Regularization::Dynamic { delta: 1e-8, epsilon: 1e-11 }
+    }
+}
+
+/// Settings of the linear solve.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct LinearParams {
+    pub kind: SolverKind,
+    pub regularization: Regularization,
+    /// Threads of the factorisation and triangular solves (`Serial` is faster on 2 cores).
+    pub parallelism: Parallelism,
+    /// Relative residual `‖b − A x‖₂ / ‖b‖₂` to reach.
+    pub residual_target: f64,
+    /// Most refinement steps after the first solve.
+    pub max_refinement_steps: usize,
+}
+
+impl Default for LinearParams {
+    fn default() -> Self {
+        LinearParams {
+            kind: SolverKind::Ldlt,
+            regularization: Regularization::default(),
+            parallelism: Parallelism::Serial,
+            residual_target: 1e-10,
+            max_refinement_steps: 5,
+        }
+    }
+}
+
+/// Outcome of one refined solve.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct RefinementInfo {
+    /// Refinement steps after the first solve.
+    pub steps: usize,
+    /// Final `‖b − A x‖₂ / ‖b‖₂` (0 when `b = 0`).
+    pub relative_residual: f64,
+}
+
+/// Symbolic analysis of a pattern: done once, reused by every numeric factorisation.
+#[derive(Debug)]
+pub struct SymbolicSystem {
+    kind: SymbolicKind,
+    /// Expected pivot signs per unknown: `+1` velocity, `−1` pressure.
+    signs: Vec<i8>,
+}
+
+#[derive(Debug)]
+enum SymbolicKind {
+    Ldlt(SymbolicCholesky<usize>),
+    Lu(SymbolicLu<usize>),
+}
+
+/// A numeric factorisation of one set of matrix values.
+#[derive(Debug)]
+pub struct NumericFactor {
+    kind: NumericKind,
+}
+
+#[derive(Debug)]
+enum NumericKind {
+    Ldlt(Vec<f64>),
+    Lu(Box<NumericLu<usize, f64>>),
+}
+
+fn faer_par(parallelism: Parallelism) -> Par {
+    match parallelism {
+        Parallelism::Serial => Par::Seq,
+        Parallelism::Rayon => Par::rayon(0),
+    }
+}
+
+impl SymbolicSystem {
+    /// Orders and analyses `pattern` for `kind`.
+    ///
+    /// # Errors
+    /// [`SolveError::Factorization`] when faer's symbolic phase fails (out of memory or a
+    /// structurally singular pattern).
+    pub fn analyse(pattern: &SystemPattern, kind: SolverKind) -> Result<Self, SolveError> {
+        let fail = |e: faer::sparse::FaerError| SolveError::Factorization {
+            stage: "symbolic",
+            reason: format!("{e:?}"),
+        };
+        let kind = match kind {
+            SolverKind::Ldlt => SymbolicKind::Ldlt(
+                factorize_symbolic_cholesky(
+                    pattern.symbolic(),
+                    Side::Lower,
+                    SymmetricOrdering::Amd,
+                    CholeskySymbolicParams::default(),
+                )
+                .map_err(fail)?,
+            ),
+            SolverKind::Lu => SymbolicKind::Lu(
+                factorize_symbolic_lu(pattern.symbolic(), LuSymbolicParams::default())
+                    .map_err(fail)?,
+            ),
+        };
+        let dofs = pattern.dofs();
+        let signs = (0..pattern.n()).map(|d| if dofs.is_pressure(d) { -1 } else { 1 }).collect();
+        Ok(SymbolicSystem { kind, signs })
+    }
+
+    /// Factorises the matrix with `values` on `pattern` (the analysed one).
+    ///
+    /// # Errors
+    /// [`SolveError::Factorization`] when faer reports a zero pivot or a singular matrix.
+    pub fn factorize(
+        &self,
+        pattern: &SystemPattern,
+        values: &[f64],
+        params: &LinearParams,
+    ) -> Result<NumericFactor, SolveError> {
+        let par = faer_par(params.parallelism);
+        let fail = |reason: String| SolveError::Factorization { stage: "numeric", reason };
+        match &self.kind {
+            SymbolicKind::Ldlt(sym) => {
+                let scale = pressure_scale(pattern, values);
+                let (values, regularization) = match params.regularization {
+                    Regularization::Dynamic { delta, epsilon } => (
+                        std::borrow::Cow::Borrowed(values),
+                        LdltRegularization {
+                            dynamic_regularization_signs: Some(&self.signs),
+                            dynamic_regularization_delta: delta * scale,
+                            dynamic_regularization_epsilon: epsilon * scale,
+                        },
+                    ),
+                    Regularization::Static { delta } => (
+                        std::borrow::Cow::Owned(shift_pressure_diagonal(
+                            pattern,
+                            values,
+                            -delta * scale,
+                        )),
+                        LdltRegularization::default(),
+                    ),
+                };
+                let matrix = SparseColMatRef::new(pattern.symbolic(), &values);
+                let mut l_values = vec![0.0; sym.len_val()];
+                let mut buf = MemBuffer::new(
+                    sym.factorize_numeric_ldlt_scratch::<f64>(par, Default::default()),
+                );
+                sym.factorize_numeric_ldlt(
+                    &mut l_values,
+                    matrix,
+                    Side::Lower,
+                    regularization,
+                    par,
+                    MemStack::new(&mut buf),
+                    Default::default(),
+                )
+                .map_err(|e| fail(format!("{e:?}")))?;
+                Ok(NumericFactor { kind: NumericKind::Ldlt(l_values) })
+            }
+            SymbolicKind::Lu(sym) => {
+                let matrix = SparseColMatRef::new(pattern.symbolic(), values);
+                let mut numeric = NumericLu::new();
+                let mut buf = MemBuffer::new(
+                    sym.factorize_numeric_lu_scratch::<f64>(par, Default::default()),
+                );
+                sym.factorize_numeric_lu(
+                    &mut numeric,
+                    matrix,
+                    par,
+                    MemStack::new(&mut buf),
+                    Default::default(),
+                )
+                .map_err(|e| fail(format!("{e:?}")))?;
+                Ok(NumericFactor { kind: NumericKind::Lu(Box::new(numeric)) })
+            }
+        }
+    }
+
+    /// Solves `A x = b` with the factor, then refines against the exact `values` until the
+    /// relative residual reaches the target or the step budget is spent.
+    ///
+    /// # Errors
+    /// [`SolveError::NonFiniteSolution`] when the solution has NaN/∞ (numerically singular
+    /// matrix); [`SolveError::NotConverged`] when the residual target is missed.
+    pub fn solve(
+        &self,
+        pattern: &SystemPattern,
+        values: &[f64],
+        factor: &NumericFactor,
+        rhs: &[f64],
+        params: &LinearParams,
+    ) -> Result<(Vec<f64>, RefinementInfo), SolveError> {
+        let norm_b = norm(rhs);
+        let mut x = vec![0.0; rhs.len()];
+        if norm_b == 0.0 {
+            return Ok((x, RefinementInfo { steps: 0, relative_residual: 0.0 }));
+        }
+        let mut residual = rhs.to_vec();
+        let mut ax = vec![0.0; rhs.len()];
+        let mut steps = 0;
+        loop {
+            self.apply_inverse(factor, &mut residual, params.parallelism);
+            x.iter_mut().zip(&residual).for_each(|(xi, di)| *xi += di);
+            pattern.multiply(values, &x, &mut ax);
+            residual.iter_mut().zip(rhs.iter().zip(&ax)).for_each(|(r, (b, a))| *r = b - a);
+            let relative = norm(&residual) / norm_b;
+            if !relative.is_finite() || x.iter().any(|v| !v.is_finite()) {
+                return Err(SolveError::NonFiniteSolution { steps });
+            }
+            if relative <= params.residual_target {
+                return Ok((x, RefinementInfo { steps, relative_residual: relative }));
+            }
+            if steps == params.max_refinement_steps {
+                return Err(SolveError::NotConverged {
+                    relative_residual: relative,
+                    target: params.residual_target,
+                    steps,
+                });
+            }
+            steps += 1;
+        }
+    }
+
+    /// Overwrites `rhs` with `A⁻¹ rhs` using the factor.
+    fn apply_inverse(&self, factor: &NumericFactor, rhs: &mut [f64], parallelism: Parallelism) {
+        let par = faer_par(parallelism);
+        let n = rhs.len();
+        let rhs = MatMut::from_column_major_slice_mut(rhs, n, 1);
+        match (&self.kind, &factor.kind) {
+            (SymbolicKind::Ldlt(sym), NumericKind::Ldlt(l_values)) => {
+                let mut buf = MemBuffer::new(sym.solve_in_place_scratch::<f64>(1, par));
+                LdltRef::new(sym, l_values).solve_in_place_with_conj(
+                    Conj::No,
+                    rhs,
+                    par,
+                    MemStack::new(&mut buf),
+                );
+            }
+            (SymbolicKind::Lu(sym), NumericKind::Lu(numeric)) => {
+                let mut buf = MemBuffer::new(sym.solve_in_place_scratch::<f64>(1, par));
+                LuRef::new_unchecked(sym, numeric).solve_in_place_with_conj(
+                    Conj::No,
+                    rhs,
+                    par,
+                    MemStack::new(&mut buf),
+                );
+            }
+            _ => unreachable!("a factor is only produced by its own symbolic system"),
+        }
+    }
+}
+
+/// Scale of the pressure Schur complement `B A⁻¹ Bᵀ`, estimated as
+/// `max |B_ij|² / max |A_ii|` (about `h² / ν` on a quasi-uniform mesh): the size of the
+/// pressure pivots, hence the scale of the regularisation. 1 when there is no coupling.
+fn pressure_scale(pattern: &SystemPattern, values: &[f64]) -> f64 {
+    let dofs = pattern.dofs();
+    let n_velocity = dofs.n_velocity_dofs();
+    let a_max =
+        (0..n_velocity).map(|d| values[pattern.diagonal_position(d)].abs()).fold(0.0, f64::max);
+    let (col_ptr, row_idx) = (pattern.col_ptr(), pattern.row_idx());
+    let b_max = (n_velocity..dofs.n_dofs())
+        .flat_map(|col| col_ptr[col]..col_ptr[col + 1])
+        .filter(|&k| row_idx[k] < n_velocity)
+        .map(|k| values[k].abs())
+        .fold(0.0, f64::max);
+    if a_max > 0.0 && b_max > 0.0 { b_max * b_max / a_max } else { 1.0 }
+}
+
+fn shift_pressure_diagonal(pattern: &SystemPattern, values: &[f64], shift: f64) -> Vec<f64> {
+    let mut out = values.to_vec();
+    let dofs = pattern.dofs();
+    for d in dofs.n_velocity_dofs()..dofs.n_dofs() {
+        out[pattern.diagonal_position(d)] += shift;
+    }
+    out
+}
+
+fn norm(v: &[f64]) -> f64 {
+    v.iter().map(|x| x * x).sum::<f64>().sqrt()
+}
