@@ -242,6 +242,18 @@ impl Equation {
         }
     }
 
+    /// Name used in notes.
+    fn label(self) -> String {
+        match self {
+            Equation::DdEven | Equation::DdOdd => "D/D (or N/N)".into(),
+            Equation::DnPlus | Equation::DnMinus => "D/N".into(),
+            Equation::Ds => "D/S".into(),
+            Equation::Do => "D/O".into(),
+            Equation::SlipSlip => "S/S".into(),
+            Equation::Determinant(a, b, _) => format!("{}/{} determinant", a.letter(), b.letter()),
+        }
+    }
+
     /// `F(λ)` before division.
     fn raw(self, l: Complex64, w: f64) -> Complex64 {
         let (s, lw) = (w.sin(), l * w);
@@ -428,9 +440,10 @@ fn collect(eq: Equation, omega: f64, found: Vec<(Complex64, usize)>, out: &mut W
         let is_one = im == 0.0 && (re - 1.0).abs() < 1e-8;
         if is_one && !eq.keeps_root_at_one() {
             out.notes.push(format!(
-                "λ = 1 solves the {:?} equation at this angle; the ansatz degenerates there and the \
-                 root is not classified (benchmarks.md §2.4)",
-                eq.family()
+                "λ = 1 solves the {} equation at this angle; the ansatz degenerates there and the \
+                 root is not classified (benchmarks.md §2.4; for D/O at 90° it is the polynomial \
+                 Couette mode)",
+                eq.label()
             ));
             continue;
         }
