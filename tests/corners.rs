@@ -555,3 +555,18 @@ fn many_distinct_corners_are_analysed_quickly() {
     assert!(elapsed < 5.0, "{elapsed} s");
     eprintln!("{n} corners analysed in {elapsed:.3} s");
 }
+
+#[test]
+fn root_branch_through_lambda_one_is_reported_in_the_notes() {
+    // S/O: a real root branch crosses λ = 1 at ω = 90° (found with the determinant; derived
+    // here, no published value). At exactly 90° it coincides with the degenerate λ = 1
+    // modes, so it is removed, and the note must say so; 10° away there is no such note.
+    let at =
+        |deg: f64| wedge_exponents(S, O, deg.to_radians(), &ExponentSearch::default()).unwrap();
+    assert!(at(90.0).notes.iter().any(|n| n.contains("within 1e-3 of λ = 1")), "{:?}", at(90.0));
+    assert!(at(100.0).notes.is_empty(), "{:?}", at(100.0).notes);
+    // Just off 90° the branch is listed: λ slightly above 1 (1.0086 at 89.43°, computed with
+    // the same determinant in 30-digit arithmetic while deriving this module).
+    let near = at(90.0 - 0.01f64.to_degrees());
+    assert!(near.exponents.iter().any(|e| (e.re - 1.008560803).abs() < 1e-8), "{near:?}");
+}

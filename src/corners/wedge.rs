@@ -30,10 +30,15 @@
 //! the basis degenerates: `sin((λ−1)θ) ≡ 0`) are divided out of the equations that always
 //! vanish there (`sin(λω) ± λ sin ω` by `λ`, resp. `λ(λ−1)`; `sin 2λω − λ sin 2ω` by
 //! `λ(λ−1)`; the determinant by `λ²(λ−1)`). A root that survives at `λ = 1` is genuine for
-//! D/D and D/S (benchmarks.md §2.1: `sin ω (sin ω − ω cos ω) = 0`; D/S is its reflection). For
-//! the other pairs the normal-stress row was multiplied by `m − 2`, so a root exactly at
-//! `λ = 1` is not decided by this ansatz: it is dropped and reported in the notes (it is the
-//! rigid rotation for N/N and the polynomial Couette mode for D/O at 90°).
+//! D/D and D/S (benchmarks.md §2.1: `sin ω (sin ω − ω cos ω) = 0`; D/S is its reflection);
+//! there the mode carries `ψ ∋ r²θ` and the pressure `p = 4μD ln r`. When a side has an
+//! outflow or traction condition, that log pressure cannot satisfy the normal-stress row at
+//! every `r`, so any `λ = 1` mode has `ψ = r²(A cos 2θ + B sin 2θ + C)`, a quadratic
+//! polynomial, with constant pressure — smooth (derived here; e.g. the rigid rotation for
+//! N/N and Couette flow for D/O at 90°). Such a root is dropped and mentioned in the notes.
+//! For the determinant pairs the zeros at `λ = 0` and `λ = 1` are divided out with their
+//! measured orders (winding numbers on circles of radius 0.02 and 1e-3); a genuine root
+//! within 1e-3 of `λ = 1` at an isolated angle is then removed too, and a note says so.
 //!
 //! Polynomial modes: for integer `λ ≥ 2` every basis function gives a polynomial `ψ`, so a
 //! simple integer root is a smooth mode (e.g. D/S at 90°: 2, 3). For S/S every integer root
@@ -342,8 +347,13 @@ fn spectrum(
     let mut re_max = search.re_max;
     loop {
         let mut out = WedgeSpectrum { exponents: Vec::new(), notes: Vec::new() };
+        let pressure_side =
+            [a, b].iter().any(|k| matches!(k, SideKind::Outflow | SideKind::Traction));
         for &eq in equations {
             let eq = eq.with_measured_orders(omega);
+            if let Some(note) = isolated_root_near_one(eq, omega) {
+                out.notes.push(note);
+            }
             let found = if eq == Equation::SlipSlip {
                 slip_slip_roots(omega, search.re_floor, re_max)
             } else {
@@ -355,7 +365,7 @@ fn spectrum(
                     }
                 })?
             };
-            collect(eq, omega, found, &mut out);
+            collect(eq, pressure_side, omega, found, &mut out);
         }
         out.exponents.sort_by(|x, y| x.re.total_cmp(&y.re).then(x.im.total_cmp(&y.im)));
         if out.leading().is_some() || re_max >= search.re_cap {
@@ -384,6 +394,29 @@ fn search_equation(
     params.cells_im = (im_max.ceil() as usize).max(2);
     let roots = find_roots(|l| eq.reduced(l, omega), bounds, &params)?;
     Ok(roots.into_iter().map(|r| (r.value, r.multiplicity)).collect())
+}
+
+/// For the determinant: a note when the zero removed at `λ = 1` is of higher order at this
+/// angle than at a neighbouring angle (0.01 rad away), i.e. a genuine root branch passes
+/// within 1e-3 of `λ = 1` here and was divided out with the degenerate modes.
+fn isolated_root_near_one(eq: Equation, omega: f64) -> Option<String> {
+    let Equation::Determinant(a, b, [_, here]) = eq else {
+        return None;
+    };
+    let other = if omega > PI { omega - 0.01 } else { omega + 0.01 };
+    let Equation::Determinant(_, _, [_, there]) =
+        Equation::Determinant(a, b, [0, 0]).with_measured_orders(other)
+    else {
+        return None;
+    };
+    (here > there).then(|| {
+        format!(
+            "{}/{}: a root within 1e-3 of λ = 1 exists at this angle and is not listed (it is \
+             removed with the degenerate λ = 1 modes); treat the corner as having λ ≈ 1",
+            a.letter(),
+            b.letter()
+        )
+    })
 }
 
 /// Winding number of `f` around the circle `|λ − s| = rho` (1024 samples; the functions
@@ -429,7 +462,13 @@ fn slip_slip_roots(omega: f64, re_floor: f64, re_max: f64) -> Vec<(Complex64, us
 
 /// Turns raw roots into [`Exponent`]s: snaps near-real roots, drops the lower member of
 /// conjugate pairs, applies the `λ = 1` rule and flags polynomial modes.
-fn collect(eq: Equation, omega: f64, found: Vec<(Complex64, usize)>, out: &mut WedgeSpectrum) {
+fn collect(
+    eq: Equation,
+    pressure_side: bool,
+    omega: f64,
+    found: Vec<(Complex64, usize)>,
+    out: &mut WedgeSpectrum,
+) {
     for (z, multiplicity) in found {
         let scale = z.norm().max(1.0);
         let im = if z.im.abs() < 1e-9 * scale { 0.0 } else { z.im };
@@ -438,11 +477,10 @@ fn collect(eq: Equation, omega: f64, found: Vec<(Complex64, usize)>, out: &mut W
         }
         let re = z.re;
         let is_one = im == 0.0 && (re - 1.0).abs() < 1e-8;
-        if is_one && !eq.keeps_root_at_one() {
+        if is_one && (pressure_side || !eq.keeps_root_at_one()) {
             out.notes.push(format!(
-                "λ = 1 solves the {} equation at this angle; the ansatz degenerates there and the \
-                 root is not classified (benchmarks.md §2.4; for D/O at 90° it is the polynomial \
-                 Couette mode)",
+                "λ = 1 solves the {} equation at this angle: with an outflow or traction side \
+                 such a mode is a quadratic polynomial (smooth), so it is not listed",
                 eq.label()
             ));
             continue;
