@@ -7,9 +7,9 @@ use std::f64::consts::PI;
 use cornerflow::case::{BoundaryCondition, ScalarExpr};
 use cornerflow::corners::wedge::wedge_exponents_by_determinant;
 use cornerflow::corners::{
-    AnalysisParams, Classification, CornerError, ExponentSearch, Family, SideKind, analyse_corners,
-    fit_local_exponent, geometric_radii, gradient_energy_in_discs, try_analyse_corners,
-    wedge_exponents,
+    AnalysisParams, Classification, CornerError, ExponentSearch, Family, FitRangeParams, SideKind,
+    analyse_corners, fit_local_exponent, fit_radius_range, geometric_radii,
+    gradient_energy_in_discs, nearest_corner_distance, try_analyse_corners, wedge_exponents,
 };
 use cornerflow::fem::{FlowField, ViscousForm};
 use cornerflow::geometry::{BoundaryLoop, Circle, Domain, Point};
@@ -569,4 +569,70 @@ fn root_branch_through_lambda_one_is_reported_in_the_notes() {
     // the same determinant in 30-digit arithmetic while deriving this module).
     let near = at(90.0 - 0.01f64.to_degrees());
     assert!(near.exponents.iter().any(|e| (e.re - 1.008560803).abs() < 1e-8), "{near:?}");
+}
+
+#[test]
+fn clockwise_outer_loop_is_a_typed_error() {
+    let (mut domain, bcs) = lid_driven_cavity();
+    domain.outer.points.reverse();
+    domain.outer.edge_parts.reverse();
+    let e = try_analyse_corners(&domain, &bcs, ViscousForm::Gradient, &AnalysisParams::default())
+        .unwrap_err();
+    assert!(matches!(e, CornerError::WrongOrientation { .. }), "{e}");
+    assert!(e.to_string().contains("`outer`"));
+    let lenient = analyse_corners(&domain, &bcs, ViscousForm::Gradient);
+    assert!(lenient.iter().all(|r| r.classification == Classification::NotAnalysed));
+}
+
+#[test]
+fn near_straight_vertex_with_a_condition_change_is_analysed_as_180_degrees() {
+    // A 175° vertex where the wall meets a slip part: within the 15° tolerance, so it is a
+    // point of a smooth curve where the condition changes: D/S at 180° gives
+    // sin(2πλ) = 0, λ₁ = 1/2 (benchmarks.md §2.4, D/S equation).
+    let bend = 5f64.to_radians();
+    let outer = make_loop(
+        "outer",
+        vec![[0.0, 0.0], [1.0, 0.0], [1.0 + bend.cos(), bend.sin()], [1.0, 2.0], [0.0, 2.0]],
+        vec![0, 1, 1, 1, 1],
+    );
+    let domain = Domain { outer, holes: vec![], part_names: names(&["wall", "slip"]) };
+    let bcs = vec![BoundaryCondition::NoSlip, BoundaryCondition::Slip];
+    let reports = analyse_corners(&domain, &bcs, ViscousForm::Gradient);
+    let r = reports.iter().find(|r| r.location == [1.0, 0.0]).unwrap();
+    assert!((r.angle_deg - 175.0).abs() < 1e-9 && r.analysed_angle_deg == 180.0);
+    assert!((r.regularity.unwrap() - 0.5).abs() < 1e-12);
+    assert!(r.notes.iter().any(|n| n.contains("discretised smooth curve")));
+}
+
+#[test]
+fn fit_range_uses_the_distance_to_the_nearest_corner() {
+    let (domain, bcs) = lid_driven_cavity();
+    let reports = analyse_corners(&domain, &bcs, ViscousForm::Gradient);
+    let d = nearest_corner_distance(&reports, 0).unwrap();
+    assert_eq!(d, 1.0); // unit square: neighbouring corners are 1 apart
+    let (r_min, r_max) = fit_radius_range(0.01, d, &FitRangeParams::default()).unwrap();
+    assert!((r_min - 0.04).abs() < 1e-15 && (r_max - 0.3).abs() < 1e-15);
+    assert_eq!(nearest_corner_distance(&reports, 99), None);
+}
+
+#[test]
+fn closed_forms_agree_with_the_determinant_at_seeded_random_angles() {
+    // As `closed_forms_agree_with_the_determinant`, at 6 angles per pair drawn from a seeded
+    // generator over (20°, 355°).
+    let mut rng = Rng(0xc0ffee);
+    let search = ExponentSearch::default();
+    for (a, b) in [(D, D), (D, N), (D, S), (D, O)] {
+        for _ in 0..6 {
+            let w = (20.0 + 335.0 * rng.uniform()).to_radians();
+            let closed = wedge_exponents(a, b, w, &search).unwrap();
+            let det = wedge_exponents_by_determinant(a, b, w, &search).unwrap();
+            let lc = closed.leading().unwrap();
+            let ld = det.leading().unwrap();
+            // Newton-polished roots of two different functions: 1e-9 (see above).
+            assert!(
+                (lc.re - ld.re).abs() < 1e-9 && (lc.im - ld.im).abs() < 1e-9,
+                "{a:?}/{b:?} {w}"
+            );
+        }
+    }
 }

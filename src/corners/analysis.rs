@@ -203,6 +203,10 @@ pub enum CornerError {
     #[error("loop `{loop_name}` has {n_points} points and {n_parts} edge parts (needs ≥ 3, equal)")]
     MalformedLoop { loop_name: String, n_points: usize, n_parts: usize },
     #[error(
+        "loop `{loop_name}` is oriented the wrong way (signed area {signed_area:e}; the outer loop must be counter-clockwise, holes clockwise)"
+    )]
+    WrongOrientation { loop_name: String, signed_area: f64 },
+    #[error(
         "loop `{loop_name}`, vertex {vertex}: an adjacent edge has zero length or a coordinate is not finite"
     )]
     DegenerateVertex { loop_name: String, vertex: usize },
@@ -228,9 +232,14 @@ pub fn analyse_corners(
     let mut cache = HashMap::new();
     let mut reports = Vec::new();
     for (loop_index, lp) in domain.loops().enumerate() {
+        let problem = loop_problem(lp, loop_index);
         for vertex in 0..lp.points.len() {
             let ctx =
                 VertexContext { domain, conditions, form, params: &params, loop_index, lp, vertex };
+            if let Some(e) = &problem {
+                reports.push(ctx.failed(e.clone()));
+                continue;
+            }
             match ctx.analyse(&mut cache) {
                 Ok(Some(r)) => reports.push(r),
                 Ok(None) => {}
@@ -244,7 +253,8 @@ pub fn analyse_corners(
 /// Analyses every vertex of every loop of `domain` (outer loop first, then holes).
 ///
 /// # Errors
-/// [`CornerError::MalformedLoop`], [`CornerError::DegenerateVertex`] for bad geometry,
+/// [`CornerError::MalformedLoop`], [`CornerError::WrongOrientation`],
+/// [`CornerError::DegenerateVertex`] for bad geometry,
 /// [`CornerError::MissingCondition`] when `conditions` has no entry for a part used by an
 /// edge, [`CornerError::Exponents`] when the exponent search fails.
 pub fn try_analyse_corners(
@@ -256,6 +266,9 @@ pub fn try_analyse_corners(
     let mut cache = HashMap::new();
     let mut out = CornerAnalysis { reports: Vec::new(), n_vertices: 0, n_smooth: 0 };
     for (loop_index, lp) in domain.loops().enumerate() {
+        if let Some(e) = loop_problem(lp, loop_index) {
+            return Err(e);
+        }
         for vertex in 0..lp.points.len() {
             let ctx = VertexContext { domain, conditions, form, params, loop_index, lp, vertex };
             out.n_vertices += 1;
@@ -266,6 +279,34 @@ pub fn try_analyse_corners(
         }
     }
     Ok(out)
+}
+
+/// Distance from corner `index` to the nearest other reported corner (any loop): the
+/// natural scale for the outer fit radius ([`fit_radius_range`](super::fit_radius_range)).
+/// `None` when `index` is out of range or there is no other corner.
+pub fn nearest_corner_distance(reports: &[CornerReport], index: usize) -> Option<f64> {
+    let p = reports.get(index)?.location;
+    reports
+        .iter()
+        .enumerate()
+        .filter(|&(j, _)| j != index)
+        .map(|(_, r)| (r.location[0] - p[0]).hypot(r.location[1] - p[1]))
+        .filter(|d| d.is_finite())
+        .min_by(f64::total_cmp)
+}
+
+/// Shape errors of a whole loop: too few points, mismatched part list, wrong orientation.
+fn loop_problem(lp: &BoundaryLoop, loop_index: usize) -> Option<CornerError> {
+    let (n_points, n_parts) = (lp.points.len(), lp.edge_parts.len());
+    if n_points < 3 || n_parts != n_points {
+        return Some(CornerError::MalformedLoop { loop_name: lp.name.clone(), n_points, n_parts });
+    }
+    let signed_area = lp.signed_area();
+    let expected_positive = loop_index == 0;
+    if signed_area.is_finite() && (signed_area > 0.0) != expected_positive {
+        return Some(CornerError::WrongOrientation { loop_name: lp.name.clone(), signed_area });
+    }
+    None
 }
 
 /// A plain-text table of the reports, one line per corner, columns aligned.

@@ -19,7 +19,8 @@ pub mod wedge;
 
 pub use analysis::{
     AnalysisParams, Classification, CornerAnalysis, CornerError, CornerReport, EddyRatios,
-    SideReport, analyse_corners, corner_table, side_kind, try_analyse_corners,
+    SideReport, analyse_corners, corner_table, nearest_corner_distance, side_kind,
+    try_analyse_corners,
 };
 pub use fit::{
     ExponentFit, FitError, FitRangeParams, fit_local_exponent, fit_radius_range, geometric_radii,
