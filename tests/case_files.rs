@@ -626,3 +626,13 @@ fn regular_polygon_bodies_need_three_or_more_sides() {
     assert_eq!(case.domain.holes[0].circle.unwrap().radius, 0.2);
     assert_eq!(case.domain.holes[0].points.len(), 64);
 }
+
+#[test]
+fn body_without_shape_or_named_like_an_outer_part_is_rejected() {
+    let (e, msg) = fails(&with(&format!("{BOX_POINTS}\n"), ""));
+    assert!(matches!(e, CaseError::BodyShape { .. }) && msg.contains("found none"), "{msg}");
+    // The default part of a body is its name, which here is already an outer part.
+    let (e, msg) = fails(&with("name = \"box\"", "name = \"top\""));
+    assert!(matches!(e, CaseError::BodyPartOnOuter { .. }), "{e:?}");
+    assert!(msg.contains("domain.bodies[0].name") && msg.contains(":12:"), "{msg}");
+}
