@@ -83,6 +83,11 @@ fn unknown_key_names_the_key_path_and_line() {
     let (e, msg) = fails(&with("density = 1.0", "densty = 1.0"));
     assert!(matches!(e, CaseError::UnknownKey { ref name, .. } if name == "densty"), "{e:?}");
     assert!(msg.contains(":3:") && msg.contains("fluid.densty"), "{msg}");
+    // Tables whose keys all have defaults still reject strangers.
+    let mut text = VALID.to_string();
+    text.push_str("[output]\ndir = \"out\"\n");
+    let (e, msg) = fails(&text);
+    assert!(matches!(e, CaseError::UnknownKey { .. }) && msg.contains("output.dir"), "{msg}");
 }
 
 #[test]
