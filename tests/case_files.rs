@@ -83,6 +83,11 @@ fn unknown_key_names_the_key_path_and_line() {
     let (e, msg) = fails(&with("density = 1.0", "densty = 1.0"));
     assert!(matches!(e, CaseError::UnknownKey { ref name, .. } if name == "densty"), "{e:?}");
     assert!(msg.contains(":3:") && msg.contains("fluid.densty"), "{msg}");
+    // Tables whose keys all have defaults still reject strangers.
+    let mut text = VALID.to_string();
+    text.push_str("[output]\ndir = \"out\"\n");
+    let (e, msg) = fails(&text);
+    assert!(matches!(e, CaseError::UnknownKey { .. }) && msg.contains("output.dir"), "{msg}");
 }
 
 #[test]
@@ -625,4 +630,14 @@ fn regular_polygon_bodies_need_three_or_more_sides() {
     let case = Case::parse(&with(BOX_POINTS, circle), origin()).unwrap();
     assert_eq!(case.domain.holes[0].circle.unwrap().radius, 0.2);
     assert_eq!(case.domain.holes[0].points.len(), 64);
+}
+
+#[test]
+fn body_without_shape_or_named_like_an_outer_part_is_rejected() {
+    let (e, msg) = fails(&with(&format!("{BOX_POINTS}\n"), ""));
+    assert!(matches!(e, CaseError::BodyShape { .. }) && msg.contains("found none"), "{msg}");
+    // The default part of a body is its name, which here is already an outer part.
+    let (e, msg) = fails(&with("name = \"box\"", "name = \"top\""));
+    assert!(matches!(e, CaseError::BodyPartOnOuter { .. }), "{e:?}");
+    assert!(msg.contains("domain.bodies[0].name") && msg.contains(":12:"), "{msg}");
 }

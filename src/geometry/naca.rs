@@ -85,6 +85,10 @@ pub fn parse_designation(digits: &str) -> Result<(f64, f64, f64), NacaError> {
 }
 
 /// Half-thickness `y_t(x)` of the closed-trailing-edge section of thickness ratio `t`, for `x` in chords.
+///
+/// # References
+/// E. N. Jacobs, K. E. Ward, R. M. Pinkerton, NACA Report 460 (1933), with the trailing-edge
+/// coefficient changed from −0.1015 to −0.1036 so that `y_t(1) = 0`.
 pub fn half_thickness(t: f64, x: f64) -> f64 {
     let [a0, a1, a2, a3, a4] = THICKNESS_COEFFICIENTS;
     5.0 * t * (a0 * x.sqrt() + x * (a1 + x * (a2 + x * (a3 + x * a4))))
@@ -110,6 +114,10 @@ impl NacaProfile {
     ///
     /// # Errors
     /// [`NacaError::PointCount`] or [`NacaError::BadChord`].
+    ///
+    /// # References
+    /// Surface construction perpendicular to the camber line: I. H. Abbott, A. E. von Doenhoff,
+    /// *Theory of Wing Sections*, Dover 1959, §6.4.
     pub fn points(&self) -> Result<Vec<Point>, NacaError> {
         let n = self.points_per_side;
         if !(MIN_POINTS_PER_SIDE..=MAX_POINTS_PER_SIDE).contains(&n) {

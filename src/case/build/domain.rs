@@ -33,6 +33,16 @@ impl Parts {
     }
 }
 
+/// A body outline before checking: its points, circle and trailing edge, and the key path and
+/// span of the shape key it came from.
+struct Outline {
+    points: Vec<Point>,
+    circle: Option<Circle>,
+    trailing_edge: Option<Point>,
+    key: String,
+    span: Range<usize>,
+}
+
 impl Context<'_> {
     pub(super) fn domain(&self, raw: RawDomain) -> Result<(Domain, Vec<Body>), CaseError> {
         let mut parts = Parts::default();
@@ -168,61 +178,51 @@ impl Context<'_> {
         }
         let part_name = b.part.as_deref().unwrap_or(&name);
         if outer.edge_parts.iter().any(|&id| parts.names[id] == part_name) {
-            let at = self.site(format!("{key}.part"), b.name.span());
+            let field = if b.part.is_some() { "part" } else { "name" };
+            let at = self.site(format!("{key}.{field}"), b.name.span());
             return Err(CaseError::BodyPartOnOuter { at, part: part_name.to_string() });
         }
-        let (points, circle, trailing_edge, shape_key, span) = self.body_shape(key, &b)?;
-        let points = drop_closing_point(points);
-        self.check_polygon(&shape_key, &points, tol, span)?;
+        let shape = self.body_shape(key, &b)?;
+        let points = drop_closing_point(shape.points);
+        self.check_polygon(&shape.key, &points, tol, shape.span)?;
         let part = parts.id(part_name);
         let edge_parts = vec![part; points.len()];
-        let mut hole = BoundaryLoop { name: name.clone(), points, edge_parts, circle };
+        let mut hole =
+            BoundaryLoop { name: name.clone(), points, edge_parts, circle: shape.circle };
         orient(&mut hole, Orientation::Clockwise);
-        Ok((hole, Body { name, part, trailing_edge }))
+        Ok((hole, Body { name, part, trailing_edge: shape.trailing_edge }))
     }
 
-    /// The body outline from whichever shape key is present: points, circle, trailing edge,
-    /// the shape's key path and its span.
-    #[allow(clippy::type_complexity)]
-    fn body_shape(
-        &self,
-        key: &str,
-        b: &RawBody,
-    ) -> Result<(Vec<Point>, Option<Circle>, Option<Point>, String, Range<usize>), CaseError> {
-        let given: Vec<&str> = [
-            b.points.as_ref().map(|_| "points"),
-            b.file.as_ref().map(|_| "file"),
-            b.naca.as_ref().map(|_| "naca"),
-            b.polygon.as_ref().map(|_| "polygon"),
-        ]
-        .into_iter()
-        .flatten()
-        .collect();
-        if given.len() != 1 {
-            let found = if given.is_empty() {
-                ", found none".into()
-            } else {
-                format!(", found {}", given.join(" and "))
-            };
-            return Err(CaseError::BodyShape { at: self.site(key, b.name.span()), found });
+    /// The body outline from whichever single shape key is present.
+    fn body_shape(&self, key: &str, b: &RawBody) -> Result<Outline, CaseError> {
+        let outline = |points, circle, trailing_edge, shape: &str, span| Outline {
+            points,
+            circle,
+            trailing_edge,
+            key: format!("{key}.{shape}"),
+            span,
+        };
+        match (&b.points, &b.file, &b.naca, &b.polygon) {
+            (Some(p), None, None, None) => {
+                Ok(outline(p.get_ref().clone(), None, None, "points", p.span()))
+            }
+            (None, Some(f), None, None) => {
+                let points = self.coordinate_file(&format!("{key}.file"), f)?;
+                Ok(outline(points, None, None, "file", f.span()))
+            }
+            (None, None, Some(n), None) => {
+                let (points, te) = self.naca(&format!("{key}.naca"), n)?;
+                Ok(outline(points, None, Some(te), "naca", n.span()))
+            }
+            (None, None, None, Some(p)) => {
+                let (points, circle) = self.polygon(&format!("{key}.polygon"), p)?;
+                Ok(outline(points, circle, None, "polygon", p.span()))
+            }
+            _ => Err(CaseError::BodyShape {
+                at: self.site(key, b.name.span()),
+                found: shape_keys(b),
+            }),
         }
-        let k = format!("{key}.{}", given[0]);
-        if let Some(p) = &b.points {
-            return Ok((p.get_ref().clone(), None, None, k, p.span()));
-        }
-        if let Some(f) = &b.file {
-            return Ok((self.coordinate_file(&k, f)?, None, None, k, f.span()));
-        }
-        if let Some(n) = &b.naca {
-            let (pts, te) = self.naca(&k, n)?;
-            return Ok((pts, None, Some(te), k, n.span()));
-        }
-        let p = b.polygon.as_ref().ok_or_else(|| CaseError::BodyShape {
-            at: self.site(key, b.name.span()),
-            found: String::new(),
-        })?;
-        let (pts, circle) = self.polygon(&k, p)?;
-        Ok((pts, circle, None, k, p.span()))
     }
 
     fn coordinate_file(&self, key: &str, f: &Sp<String>) -> Result<Vec<Point>, CaseError> {
@@ -301,4 +301,22 @@ fn diagonal(points: &[Point]) -> f64 {
         }
     }
     (hi[0] - lo[0]).hypot(hi[1] - lo[1])
+}
+
+/// ", found …" listing the shape keys a body gives (for the exactly-one error).
+fn shape_keys(b: &RawBody) -> String {
+    let given: Vec<&str> = [
+        b.points.as_ref().map(|_| "points"),
+        b.file.as_ref().map(|_| "file"),
+        b.naca.as_ref().map(|_| "naca"),
+        b.polygon.as_ref().map(|_| "polygon"),
+    ]
+    .into_iter()
+    .flatten()
+    .collect();
+    if given.is_empty() {
+        ", found none".into()
+    } else {
+        format!(", found {}", given.join(" and "))
+    }
 }
