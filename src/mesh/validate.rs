@@ -34,7 +34,11 @@ pub(crate) fn check_controls(controls: &MeshControls, n_parts: usize) -> Result<
     for (i, g) in controls.grading.iter().enumerate() {
         positive(&format!("grading[{i}].h_min"), g.h_min)?;
         if !(g.growth.is_finite() && g.growth >= 0.0) {
-            return Err(invalid(&format!("grading[{i}].growth"), g.growth, "must be finite and ≥ 0"));
+            return Err(invalid(
+                &format!("grading[{i}].growth"),
+                g.growth,
+                "must be finite and ≥ 0",
+            ));
         }
         if let Some(&c) = g.point.iter().find(|c| !c.is_finite()) {
             return Err(invalid(&format!("grading[{i}].point"), c, "coordinates must be finite"));
@@ -169,7 +173,10 @@ fn segments_touch(p1: Point, p2: Point, q1: Point, q2: Point) -> bool {
 }
 
 fn on_box(a: Point, b: Point, p: Point) -> bool {
-    p[0] >= a[0].min(b[0]) && p[0] <= a[0].max(b[0]) && p[1] >= a[1].min(b[1]) && p[1] <= a[1].max(b[1])
+    p[0] >= a[0].min(b[0])
+        && p[0] <= a[0].max(b[0])
+        && p[1] >= a[1].min(b[1])
+        && p[1] <= a[1].max(b[1])
 }
 
 /// Even-odd ray casting: is `p` strictly inside the closed polygon?
