@@ -7,9 +7,17 @@
 //! **Invariant:** the mesh module never sees boundary-condition values or fluid properties;
 //! it knows parts only by their id and name.
 
+pub mod generate;
+pub mod quality;
+pub mod refine;
+mod size;
 pub mod structured;
+mod validate;
 
 use std::collections::HashMap;
+
+pub use generate::{estimate_triangles, generate};
+pub use quality::{MeshStats, cell_quality, stats};
 
 use crate::geometry::{Circle, PartId, Point};
 
@@ -77,6 +85,33 @@ pub enum MeshError {
     NonManifoldEdge { a: usize, b: usize },
     #[error("mesh invariant violated: {0}")]
     Invariant(String),
+    #[error(
+        "the mesh would have about {estimate:.0} triangles, more than the cap of {cap}; \
+         coarsen the mesh controls or raise the cap"
+    )]
+    TooManyTriangles { estimate: f64, cap: usize },
+    #[error("mesh control `{key}` = {value}: {reason}")]
+    InvalidControl { key: String, value: f64, reason: &'static str },
+    #[error("boundary loop `{loop_name}`: {reason}")]
+    InvalidLoop { loop_name: String, reason: String },
+    #[error(
+        "boundary loop `{loop_a}` edge {edge_a} intersects or touches loop `{loop_b}` edge {edge_b}"
+    )]
+    Intersection { loop_a: String, edge_a: usize, loop_b: String, edge_b: usize },
+    #[error("hole `{hole}` is not inside the outer loop or lies inside another hole")]
+    HoleOutside { hole: String },
+    #[error("triangulation failed: {0}")]
+    Triangulation(String),
+    #[error(
+        "refinement stopped at its budget of {budget} added vertices before reaching the \
+         requested size and angle; lower `min_angle_deg` or coarsen the mesh"
+    )]
+    RefinementIncomplete { budget: usize },
+    #[error(
+        "{count} triangles still have all three vertices on the boundary after {passes} passes; \
+         use a smaller mesh size"
+    )]
+    BoundaryTriangles { count: usize, passes: usize },
 }
 
 impl Mesh {
