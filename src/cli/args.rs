@@ -72,7 +72,8 @@ mod tests {
 
     #[test]
     fn mesh_takes_a_case_an_output_folder_and_force() {
-        let cli = Cli::try_parse_from(["cornerflow", "mesh", "c.toml", "-o", "out", "--force"]).unwrap();
+        let cli =
+            Cli::try_parse_from(["cornerflow", "mesh", "c.toml", "-o", "out", "--force"]).unwrap();
         let Command::Mesh(args) = cli.command else { panic!("expected mesh") };
         assert_eq!(args.case, PathBuf::from("c.toml"));
         assert_eq!(args.meshing.output, Some(PathBuf::from("out")));
@@ -88,7 +89,8 @@ mod tests {
 
     #[test]
     fn corners_takes_a_json_path_and_unknown_options_are_rejected() {
-        let cli = Cli::try_parse_from(["cornerflow", "corners", "c.toml", "--json", "c.json"]).unwrap();
+        let cli =
+            Cli::try_parse_from(["cornerflow", "corners", "c.toml", "--json", "c.json"]).unwrap();
         let Command::Corners(args) = cli.command else { panic!("expected corners") };
         assert_eq!(args.json, Some(PathBuf::from("c.json")));
         assert!(Cli::try_parse_from(["cornerflow", "mesh", "c.toml", "--bogus"]).is_err());

@@ -1,0 +1,258 @@
+//! `cornerflow run [CASE]`: mesh, solve, post-process and write everything into the output
+//! folder — `mesh.vtu`, `solution.vtu`, `wall-<part>.csv` per force part, `summary.json`.
+
+use std::path::Path;
+use std::time::Instant;
+
+use anyhow::Context;
+use cornerflow::case::{Case, Equations};
+use cornerflow::corners::{analyse_corners, corner_table};
+use cornerflow::fem::FlowField;
+use cornerflow::mesh::Mesh;
+use cornerflow::output::table::{write_csv, write_json};
+use cornerflow::output::vtu::{
+    CellField, PointField, VtuOptions, boundary_part_per_node, write_vtu,
+};
+use cornerflow::post::{self, FluidProperties, ReferenceScales, VolumeForceTerms, WallReference};
+use cornerflow::solver::{SolveInfo, SolverParams, StokesProblem, solve_stokes};
+use serde_json::{Value, json};
+
+use super::args::RunArgs;
+use super::mesh::{mesh_case, output_dir, print_summary, write_mesh_vtu};
+use super::progress::Stage;
+use super::{BadInput, load_case};
+
+/// Runs `cornerflow run`.
+pub fn run(args: &RunArgs) -> anyhow::Result<()> {
+    configure_threads(args.threads)?;
+    let case = match &args.case {
+        Some(path) => load_case(path)?,
+        None => {
+            eprintln!(
+                "no case given: running the built-in default case (examples/profile-channel.toml)"
+            );
+            Case::default_case()
+        }
+    };
+    let started = Instant::now();
+    let out = output_dir(&case, &args.meshing);
+    let corners = analyse_corners(&case.domain, &case.conditions, case.model.viscous_form);
+    let (mesh, stats) = mesh_case(&case, &args.meshing)?;
+    print_summary(&case, &stats);
+    if case.output.mesh {
+        write_mesh_vtu(&out.join("mesh.vtu"), &mesh, case.output.compress)?;
+    }
+    let (field, info) = match case.model.equations {
+        Equations::Stokes => solve_steady_stokes(&case, &mesh)?,
+        Equations::NavierStokes => {
+            return Err(anyhow::Error::new(BadInput(format!(
+                "{}: `model.equations`: Navier–Stokes is not available in this version yet; use \"stokes\"",
+                case.source.display()
+            ))));
+        }
+    };
+    let forces = report_forces(&case, &mesh, &field, &out)?;
+    write_solution(&case, &mesh, &field, &out)?;
+    let summary = json!({
+        "case": case.name,
+        "source": case.source.display().to_string(),
+        "model": "stokes",
+        "reynolds_number": case.fluid.reynolds_number(),
+        "mesh": mesh_json(&stats),
+        "solver": solver_json(&info),
+        "forces": forces,
+        "probes": probes_json(&case, &mesh, &field)?,
+        "corners": serde_json::to_value(&corners)?,
+        "wall_time_s": started.elapsed().as_secs_f64(),
+    });
+    write_json(&out.join("summary.json"), &summary)?;
+    println!("\ncorners of the domain:\n{}", corner_table(&corners));
+    eprintln!("results in {}", out.display());
+    Ok(())
+}
+
+fn configure_threads(threads: Option<usize>) -> anyhow::Result<()> {
+    if let Some(n) = threads {
+        if n == 0 {
+            return Err(anyhow::Error::new(BadInput("--threads must be at least 1".into())));
+        }
+        rayon::ThreadPoolBuilder::new().num_threads(n).build_global()?;
+    }
+    Ok(())
+}
+
+fn solve_steady_stokes(case: &Case, mesh: &Mesh) -> anyhow::Result<(FlowField, SolveInfo)> {
+    let stage = Stage::start("solve", "steady Stokes, Taylor–Hood P2–P1, sparse LDLᵀ");
+    let problem = StokesProblem {
+        viscosity: case.fluid.kinematic_viscosity,
+        conditions: &case.conditions,
+        body_force: case.body_force.as_ref(),
+        viscous_form: case.model.viscous_form,
+        time: 0.0,
+    };
+    let (field, info) = solve_stokes(mesh, &problem, &SolverParams::default())
+        .with_context(|| format!("solving {}", case.source.display()))?;
+    stage.done(&format!(
+        "{} unknowns, relative residual {:.1e} after {} refinement step(s){}",
+        info.n_velocity_dofs + info.n_pressure_dofs,
+        info.relative_residual,
+        info.refinement_steps,
+        if info.pressure_fixed { ", pressure fixed to zero mean (no outflow part)" } else { "" }
+    ));
+    Ok((field, info))
+}
+
+fn fluid(case: &Case) -> FluidProperties {
+    FluidProperties {
+        density: case.fluid.density,
+        viscosity: case.fluid.kinematic_viscosity,
+        form: case.model.viscous_form,
+    }
+}
+
+/// Forces on every reported part by both formulas, with coefficients; writes the wall
+/// distribution of each part as CSV.
+fn report_forces(case: &Case, mesh: &Mesh, field: &FlowField, out: &Path) -> anyhow::Result<Value> {
+    let stage = Stage::start("forces", "surface traction and weak-residual forces");
+    let fluid = fluid(case);
+    let scales = ReferenceScales {
+        density: case.fluid.density,
+        velocity: case.fluid.reference_velocity,
+        length: case.fluid.reference_length,
+    };
+    let body_force = case
+        .body_force
+        .as_ref()
+        .map(|[fx, fy]| move |p: [f64; 2]| [fx.eval(p[0], p[1], 0.0), fy.eval(p[0], p[1], 0.0)]);
+    let terms = VolumeForceTerms {
+        body_force: body_force.as_ref().map(|f| f as &(dyn Fn([f64; 2]) -> [f64; 2] + Sync)),
+        ..VolumeForceTerms::default()
+    };
+    let mut parts = Vec::new();
+    for &part in &case.forces {
+        let surface = post::surface_force(mesh, field, &fluid, part)?;
+        let volume = post::volume_force(mesh, field, &fluid, part, &terms)?;
+        let rows = post::wall_distribution(
+            mesh,
+            field,
+            &fluid,
+            part,
+            &WallReference::new(scales.velocity),
+        )?;
+        let name = case.part_name(part);
+        let table: Vec<Vec<f64>> = rows
+            .iter()
+            .map(|r| vec![r.s, r.x, r.y, r.pressure_coefficient, r.wall_shear])
+            .collect();
+        write_csv(
+            &out.join(format!("wall-{name}.csv")),
+            &["s", "x", "y", "cp", "wall_shear"],
+            &table,
+        )?;
+        parts.push(json!({
+            "part": name,
+            "surface": { "force": surface, "coefficients": post::coefficients(&surface, &scales)? },
+            "volume": { "force": volume, "coefficients": post::coefficients(&volume, &scales)? },
+        }));
+        println!(
+            "force on {name}: volume form c_D = {:.6}, c_L = {:.6}; surface form c_D = {:.6}, c_L = {:.6}",
+            post::coefficients(&volume, &scales)?.drag,
+            post::coefficients(&volume, &scales)?.lift,
+            post::coefficients(&surface, &scales)?.drag,
+            post::coefficients(&surface, &scales)?.lift,
+        );
+    }
+    stage.done(&format!("{} part(s)", parts.len()));
+    Ok(Value::Array(parts))
+}
+
+fn write_solution(case: &Case, mesh: &Mesh, field: &FlowField, out: &Path) -> anyhow::Result<()> {
+    if !case.output.solution {
+        return Ok(());
+    }
+    let stage = Stage::start("output", "derived fields and solution.vtu");
+    let derived = post::derived_fields(mesh, field)?;
+    let psi = post::stream_function(mesh, field)?;
+    let density = case.fluid.density;
+    let pressure: Vec<f64> = derived.pressure.iter().map(|p| p * density).collect();
+    let tags = boundary_part_per_node(mesh);
+    let quality = cornerflow::mesh::cell_quality(mesh);
+    let path = out.join("solution.vtu");
+    write_vtu(
+        &path,
+        mesh,
+        &[
+            PointField::Vector("velocity", &field.velocity),
+            PointField::Scalar("pressure", &pressure),
+            PointField::Scalar("speed", &derived.speed),
+            PointField::Scalar("vorticity", &derived.vorticity),
+            PointField::Scalar("stream_function", &psi),
+            PointField::Integer("boundary_part", &tags),
+        ],
+        &[
+            CellField::Scalar("divergence_error", &derived.divergence_error),
+            CellField::Scalar("quality_min_angle_deg", &quality),
+        ],
+        VtuOptions { compress: case.output.compress, boundary_edges: false },
+    )?;
+    stage.done(&format!("wrote {}", path.display()));
+    Ok(())
+}
+
+fn probes_json(case: &Case, mesh: &Mesh, field: &FlowField) -> anyhow::Result<Value> {
+    if case.probes.is_empty() && case.pressure_difference.is_none() {
+        return Ok(Value::Null);
+    }
+    let locator = post::PointLocator::new(mesh)?;
+    let points: Vec<[f64; 2]> = case.probes.iter().map(|p| p.point).collect();
+    let values = locator.probe(field, &points)?;
+    let probes: Vec<Value> = case
+        .probes
+        .iter()
+        .zip(&values)
+        .map(|(probe, value)| match value {
+            Some(v) => json!({ "name": probe.name, "point": probe.point, "velocity": v.velocity,
+                               "pressure": v.pressure * case.fluid.density }),
+            None => json!({ "name": probe.name, "point": probe.point, "outside_mesh": true }),
+        })
+        .collect();
+    let difference = match &case.pressure_difference {
+        Some(pd) => {
+            json!(locator.pressure_difference(field, pd.first, pd.second)? * case.fluid.density)
+        }
+        None => Value::Null,
+    };
+    Ok(json!({ "points": probes, "pressure_difference": difference }))
+}
+
+fn mesh_json(stats: &cornerflow::mesh::MeshStats) -> Value {
+    json!({
+        "vertices": stats.n_vertices,
+        "triangles": stats.n_triangles,
+        "nodes": stats.n_nodes,
+        "min_angle_deg": stats.min_angle_deg,
+        "mean_angle_deg": stats.mean_angle_deg,
+        "max_angle_deg": stats.max_angle_deg,
+        "area": stats.area,
+        "edges_per_part": stats.edges_per_part,
+    })
+}
+
+fn solver_json(info: &SolveInfo) -> Value {
+    let t = &info.timings;
+    json!({
+        "velocity_dofs": info.n_velocity_dofs,
+        "pressure_dofs": info.n_pressure_dofs,
+        "nonzeros": info.nnz,
+        "relative_residual": info.relative_residual,
+        "refinement_steps": info.refinement_steps,
+        "pressure_fixed_to_zero_mean": info.pressure_fixed,
+        "timings_s": {
+            "pattern": t.pattern.as_secs_f64(),
+            "assembly": t.assembly.as_secs_f64(),
+            "symbolic": t.symbolic.as_secs_f64(),
+            "numeric": t.numeric.as_secs_f64(),
+            "solve": t.solve.as_secs_f64(),
+        },
+    })
+}
