@@ -48,13 +48,34 @@ fn with(from: &str, to: &str) -> String {
     VALID.replacen(from, to, 1)
 }
 
-/// Parses `text`, expecting an error; returns it with its message.
+/// Parses `text`, expecting an error; returns it with its message. Every catalogue entry is
+/// also run through the binary (`cornerflow mesh`), which must exit with code 2 (bad input),
+/// print the same locating key and line, and not panic.
 fn fails(text: &str) -> (CaseError, String) {
     match Case::parse(text, origin()) {
         Ok(_) => panic!("expected an error for:\n{text}"),
         Err(e) => {
             let msg = e.to_string();
+            check_cli_rejects(text, &e);
             (e, msg)
+        }
+    }
+}
+
+/// Writes `text` to a temporary case file and checks the CLI's verdict on it.
+fn check_cli_rejects(text: &str, expected: &CaseError) {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("test.toml"), text).unwrap();
+    let out = crate::util::run_cli(dir.path(), &["mesh", "test.toml"]);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "exit code for {expected}: {stderr}");
+    assert!(!stderr.contains("panicked"), "{stderr}");
+    if let Some(site) = expected.site() {
+        if !site.key.is_empty() {
+            assert!(stderr.contains(&site.key), "CLI message lacks key `{}`: {stderr}", site.key);
+        }
+        if let Some((line, col)) = site.position {
+            assert!(stderr.contains(&format!(":{line}:{col}")), "CLI message lacks {line}:{col}: {stderr}");
         }
     }
 }

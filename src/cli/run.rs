@@ -4,7 +4,6 @@
 use std::path::Path;
 use std::time::Instant;
 
-use anyhow::Context;
 use cornerflow::case::{Case, Equations};
 use cornerflow::corners::{analyse_corners, corner_table};
 use cornerflow::fem::FlowField;
@@ -14,7 +13,7 @@ use cornerflow::output::vtu::{
     CellField, PointField, VtuOptions, boundary_part_per_node, write_vtu,
 };
 use cornerflow::post::{self, FluidProperties, ReferenceScales, VolumeForceTerms, WallReference};
-use cornerflow::solver::{SolveInfo, SolverParams, StokesProblem, solve_stokes};
+use cornerflow::solver::{SolveError, SolveInfo, SolverParams, StokesProblem, solve_stokes};
 use serde_json::{Value, json};
 
 use super::args::RunArgs;
@@ -34,6 +33,12 @@ pub fn run(args: &RunArgs) -> anyhow::Result<()> {
             Case::default_case()
         }
     };
+    if case.model.equations == Equations::NavierStokes {
+        return Err(anyhow::Error::new(BadInput(format!(
+            "{}: `model.equations`: Navier–Stokes is not available in this version yet; use \"stokes\"",
+            case.source.display()
+        ))));
+    }
     let started = Instant::now();
     let out = output_dir(&case, &args.meshing);
     let corners = analyse_corners(&case.domain, &case.conditions, case.model.viscous_form);
@@ -42,15 +47,7 @@ pub fn run(args: &RunArgs) -> anyhow::Result<()> {
     if case.output.mesh {
         write_mesh_vtu(&out.join("mesh.vtu"), &mesh, case.output.compress)?;
     }
-    let (field, info) = match case.model.equations {
-        Equations::Stokes => solve_steady_stokes(&case, &mesh)?,
-        Equations::NavierStokes => {
-            return Err(anyhow::Error::new(BadInput(format!(
-                "{}: `model.equations`: Navier–Stokes is not available in this version yet; use \"stokes\"",
-                case.source.display()
-            ))));
-        }
-    };
+    let (field, info) = solve_steady_stokes(&case, &mesh)?;
     let forces = report_forces(&case, &mesh, &field, &out)?;
     write_solution(&case, &mesh, &field, &out)?;
     let summary = json!({
@@ -90,8 +87,8 @@ fn solve_steady_stokes(case: &Case, mesh: &Mesh) -> anyhow::Result<(FlowField, S
         viscous_form: case.model.viscous_form,
         time: 0.0,
     };
-    let (field, info) = solve_stokes(mesh, &problem, &SolverParams::default())
-        .with_context(|| format!("solving {}", case.source.display()))?;
+    let (field, info) =
+        solve_stokes(mesh, &problem, &SolverParams::default()).map_err(|e| solve_error(case, e))?;
     stage.done(&format!(
         "{} unknowns, relative residual {:.1e} after {} refinement step(s){}",
         info.n_velocity_dofs + info.n_pressure_dofs,
@@ -100,6 +97,19 @@ fn solve_steady_stokes(case: &Case, mesh: &Mesh) -> anyhow::Result<(FlowField, S
         if info.pressure_fixed { ", pressure fixed to zero mean (no outflow part)" } else { "" }
     ));
     Ok((field, info))
+}
+
+/// Classifies solver errors: those caused by the case's boundary data exit with code 2.
+fn solve_error(case: &Case, err: SolveError) -> anyhow::Error {
+    let file = case.source.display();
+    match err {
+        e @ (SolveError::InvalidViscosity { .. }
+        | SolveError::MissingCondition { .. }
+        | SolveError::SlipPartNotStraight { .. }
+        | SolveError::NonFiniteBoundaryValue { .. }
+        | SolveError::IncompatibleFlux { .. }) => anyhow::Error::new(BadInput(format!("{file}: {e}"))),
+        e => anyhow::Error::new(e).context(format!("solving {file} failed")),
+    }
 }
 
 fn fluid(case: &Case) -> FluidProperties {
