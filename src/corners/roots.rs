@@ -7,8 +7,9 @@
 //! Method (argument principle): the box is cut into a grid of cells. For each cell the number
 //! of roots inside is the winding number of `f` around the cell boundary,
 //! `N = (1/2π) Δ_∂C arg f`, accumulated along each edge with adaptive sampling (a segment is
-//! split until the phase change across it is below π/3, so no winding is skipped while
-//! `f ≠ 0` on the edge). Cells with `N = 1` start Newton's method at their centre; the root is
+//! split until both halves turn by less than π/4 and add up to the whole, which guards
+//! against aliasing by a full turn; each grid edge is computed once and shared by its two
+//! cells). Cells with `N = 1` start Newton's method at their centre; the root is
 //! accepted when Newton converges inside the cell. Other cells with `N ≥ 1` are quartered
 //! recursively; a cell that reaches the size floor with `N ≥ 2` holds a multiple root (or an
 //! unresolvable cluster) and is polished by the modified Newton step `z ← z − N f/f′`.
