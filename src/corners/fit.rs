@@ -23,7 +23,9 @@ pub struct ExponentFit {
     /// Standard error of `λ` from the regression residuals.
     pub std_error: f64,
     /// Confidence band: the hull of `λ ± 2·std_error` and the fits over the inner and outer
-    /// halves of the radii (a curved log–log plot widens the band).
+    /// halves of the radii (a curved log–log plot widens the band). It measures scatter and
+    /// curvature only, not a systematic bias of the samples (e.g. the discretisation error of
+    /// the cells at the corner, which adds a near-constant to every `E(r)`).
     pub band: (f64, f64),
     /// Smallest and largest radius used.
     pub r_range: (f64, f64),

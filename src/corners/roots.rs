@@ -7,8 +7,9 @@
 //! Method (argument principle): the box is cut into a grid of cells. For each cell the number
 //! of roots inside is the winding number of `f` around the cell boundary,
 //! `N = (1/2π) Δ_∂C arg f`, accumulated along each edge with adaptive sampling (a segment is
-//! split until the phase change across it is below π/3, so no winding is skipped while
-//! `f ≠ 0` on the edge). Cells with `N = 1` start Newton's method at their centre; the root is
+//! split until both halves turn by less than π/4 and add up to the whole, which guards
+//! against aliasing by a full turn; each grid edge is computed once and shared by its two
+//! cells). Cells with `N = 1` start Newton's method at their centre; the root is
 //! accepted when Newton converges inside the cell. Other cells with `N ≥ 1` are quartered
 //! recursively; a cell that reaches the size floor with `N ≥ 2` holds a multiple root (or an
 //! unresolvable cluster) and is polished by the modified Newton step `z ← z − N f/f′`.
@@ -209,16 +210,20 @@ impl<F: Fn(Complex64) -> Complex64> Search<'_, F> {
         };
         let xs = lines(bounds.re.0, bounds.re.1, self.params.cells_re);
         let ys = lines(bounds.im.0, bounds.im.1, self.params.cells_im);
+        let (horizontal, vertical) = self.grid_edges(&xs, &ys)?;
         let (mut roots, mut expected) = (Vec::new(), 0usize);
         for i in 0..xs.len() - 1 {
             for j in 0..ys.len() - 1 {
-                let cell = Cell {
-                    lo: Complex64::new(xs[i], ys[j]),
-                    hi: Complex64::new(xs[i + 1], ys[j + 1]),
-                };
-                let n = self.winding(&cell)?;
+                // Counter-clockwise: bottom, right, top reversed, left reversed.
+                let total =
+                    horizontal[i][j] + vertical[i + 1][j] - horizontal[i][j + 1] - vertical[i][j];
+                let n = winding_from_phase(total);
                 expected += n;
                 if n > 0 {
+                    let cell = Cell {
+                        lo: Complex64::new(xs[i], ys[j]),
+                        hi: Complex64::new(xs[i + 1], ys[j + 1]),
+                    };
                     self.resolve(cell, n, &mut roots)?;
                 }
             }
@@ -230,6 +235,31 @@ impl<F: Fn(Complex64) -> Complex64> Search<'_, F> {
         Ok(roots)
     }
 
+    /// Phase changes along every grid edge, each computed once and shared by the two cells
+    /// it bounds: `horizontal[i][j]` runs from `(x_i, y_j)` to `(x_{i+1}, y_j)`,
+    /// `vertical[i][j]` from `(x_i, y_j)` to `(x_i, y_{j+1})`.
+    #[allow(clippy::type_complexity)]
+    fn grid_edges(
+        &mut self,
+        xs: &[f64],
+        ys: &[f64],
+    ) -> Result<(Vec<Vec<f64>>, Vec<Vec<f64>>), RootError> {
+        let z = |x: f64, y: f64| Complex64::new(x, y);
+        let mut horizontal = vec![vec![0.0; ys.len()]; xs.len() - 1];
+        for (i, row) in horizontal.iter_mut().enumerate() {
+            for (j, v) in row.iter_mut().enumerate() {
+                *v = self.phase_change(z(xs[i], ys[j]), z(xs[i + 1], ys[j]))?;
+            }
+        }
+        let mut vertical = vec![vec![0.0; ys.len() - 1]; xs.len()];
+        for (i, row) in vertical.iter_mut().enumerate() {
+            for (j, v) in row.iter_mut().enumerate() {
+                *v = self.phase_change(z(xs[i], ys[j]), z(xs[i], ys[j + 1]))?;
+            }
+        }
+        Ok((horizontal, vertical))
+    }
+
     /// Number of roots inside `cell` (argument principle).
     fn winding(&mut self, cell: &Cell) -> Result<usize, RootError> {
         let c = cell.corners();
@@ -237,9 +267,7 @@ impl<F: Fn(Complex64) -> Complex64> Search<'_, F> {
         for k in 0..4 {
             total += self.phase_change(c[k], c[(k + 1) % 4])?;
         }
-        let turns = total / std::f64::consts::TAU;
-        // The phase changes are exact up to rounding, so the sum is an integer to ~1e-12.
-        Ok(turns.round().max(0.0) as usize)
+        Ok(winding_from_phase(total))
     }
 
     /// Continuous change of `arg f` along the segment `a → b`, by adaptive bisection.
@@ -348,6 +376,12 @@ impl<F: Fn(Complex64) -> Complex64> Search<'_, F> {
         }
         Ok(None)
     }
+}
+
+/// Winding number from a total phase change; the phase changes are exact up to rounding,
+/// so the turns are an integer to ~1e-12.
+fn winding_from_phase(total: f64) -> usize {
+    (total / std::f64::consts::TAU).round().max(0.0) as usize
 }
 
 /// Adds the root; one equal to a listed root (within `tol`) came from a disjoint cell, so the

@@ -19,11 +19,11 @@
 //! Eigenvalue equations used (the pair is unordered; every equation is symmetric in the sides):
 //! * D/D: `sin(λω) = −λ sin ω` (ψ even) and `sin(λω) = +λ sin ω` (ψ odd) — Dauge (1989),
 //!   Moffatt (1964).
-//! * N/N: the same two equations — derived (benchmarks.md §2.4, [D]).
-//! * D/N: `cos(λω) = ±λ sin ω` — derived ([D]).
-//! * D/S: `sin(2λω) = λ sin 2ω` — derived ([D]).
-//! * S/S: `λ = nπ/ω ± 1`, `n ≥ 1` — derived ([D]), closed-form roots.
-//! * D/O: `3 sin²(λω) + λ² sin² ω = 4` — derived ([D]).
+//! * N/N: the same two equations — derived (benchmarks.md §2.4, \[D\]).
+//! * D/N: `cos(λω) = ±λ sin ω` — derived (\[D\]).
+//! * D/S: `sin(2λω) = λ sin 2ω` — derived (\[D\]).
+//! * S/S: `λ = nπ/ω ± 1`, `n ≥ 1` — derived (\[D\]), closed-form roots.
+//! * D/O: `3 sin²(λω) + λ² sin² ω = 4` — derived (\[D\]).
 //! * S/O, S/N, O/O, O/N: the 4×4 determinant of the rows above, evaluated numerically.
 //!
 //! Spurious roots: `λ = 0` (translations; also outside the search box) and `λ = 1` (where
@@ -50,7 +50,7 @@
 //!   domains with corners. Part I*, SIAM J. Math. Anal. 20 (1989) 74–97.
 //! * H.K. Moffatt, *Viscous and resistive eddies near a sharp corner*, J. Fluid Mech. 18
 //!   (1964) 1–18.
-//! * /work/shared/refs/benchmarks.md §2.1–2.4 (derivations marked [D] there).
+//! * /work/shared/refs/benchmarks.md §2.1–2.4 (derivations marked \[D\] there).
 
 use num_complex::Complex64;
 use std::f64::consts::PI;
@@ -124,8 +124,8 @@ impl Exponent {
 /// Controls of the exponent search.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct ExponentSearch {
-    /// Real parts up to this are searched (doubled, up to `re_cap`, until a non-polynomial
-    /// exponent is found).
+    /// Real parts up to this are searched (doubled, up to `min(re_cap, max(re_max, 10/ω))`,
+    /// until a non-polynomial exponent is found).
     pub re_max: f64,
     /// Largest real part ever searched (acute corners have large exponents, `≈ 4.2/ω`).
     pub re_cap: f64,
@@ -368,10 +368,14 @@ fn spectrum(
             collect(eq, pressure_side, omega, found, &mut out);
         }
         out.exponents.sort_by(|x, y| x.re.total_cmp(&y.re).then(x.im.total_cmp(&y.im)));
-        if out.leading().is_some() || re_max >= search.re_cap {
+        // The first non-polynomial root of every pair lies below ~4.3/ω (the small-angle D/D
+        // limit ξ₁/ω = 4.2124/ω, benchmarks.md §2.3); beyond 10/ω there is nothing to find
+        // (e.g. the all-polynomial straight wall) and widening would only cost time.
+        let cap = search.re_cap.min(search.re_max.max(10.0 / omega));
+        if out.leading().is_some() || re_max >= cap {
             return Ok(out);
         }
-        re_max = (2.0 * re_max).min(search.re_cap);
+        re_max = (2.0 * re_max).min(cap);
     }
 }
 
