@@ -75,7 +75,10 @@ fn check_cli_rejects(text: &str, expected: &CaseError) {
             assert!(stderr.contains(&site.key), "CLI message lacks key `{}`: {stderr}", site.key);
         }
         if let Some((line, col)) = site.position {
-            assert!(stderr.contains(&format!(":{line}:{col}")), "CLI message lacks {line}:{col}: {stderr}");
+            assert!(
+                stderr.contains(&format!(":{line}:{col}")),
+                "CLI message lacks {line}:{col}: {stderr}"
+            );
         }
     }
 }

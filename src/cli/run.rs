@@ -4,8 +4,9 @@
 use std::path::Path;
 use std::time::Instant;
 
+use anyhow::Context;
 use cornerflow::case::{Case, Equations};
-use cornerflow::corners::{analyse_corners, corner_table};
+use cornerflow::corners::{AnalysisParams, try_analyse_corners};
 use cornerflow::fem::FlowField;
 use cornerflow::mesh::Mesh;
 use cornerflow::output::table::{write_csv, write_json};
@@ -41,7 +42,13 @@ pub fn run(args: &RunArgs) -> anyhow::Result<()> {
     }
     let started = Instant::now();
     let out = output_dir(&case, &args.meshing);
-    let corners = analyse_corners(&case.domain, &case.conditions, case.model.viscous_form);
+    let corners = try_analyse_corners(
+        &case.domain,
+        &case.conditions,
+        case.model.viscous_form,
+        &AnalysisParams::default(),
+    )
+    .with_context(|| format!("corner analysis of {}", case.source.display()))?;
     let (mesh, stats) = mesh_case(&case, &args.meshing)?;
     print_summary(&case, &stats);
     if case.output.mesh {
@@ -59,11 +66,11 @@ pub fn run(args: &RunArgs) -> anyhow::Result<()> {
         "solver": solver_json(&info),
         "forces": forces,
         "probes": probes_json(&case, &mesh, &field)?,
-        "corners": serde_json::to_value(&corners)?,
+        "corners": serde_json::to_value(&corners.reports)?,
         "wall_time_s": started.elapsed().as_secs_f64(),
     });
     write_json(&out.join("summary.json"), &summary)?;
-    println!("\ncorners of the domain:\n{}", corner_table(&corners));
+    println!("\ncorners of the domain:\n{}", corners.table());
     eprintln!("results in {}", out.display());
     Ok(())
 }
@@ -107,7 +114,9 @@ fn solve_error(case: &Case, err: SolveError) -> anyhow::Error {
         | SolveError::MissingCondition { .. }
         | SolveError::SlipPartNotStraight { .. }
         | SolveError::NonFiniteBoundaryValue { .. }
-        | SolveError::IncompatibleFlux { .. }) => anyhow::Error::new(BadInput(format!("{file}: {e}"))),
+        | SolveError::IncompatibleFlux { .. }) => {
+            anyhow::Error::new(BadInput(format!("{file}: {e}")))
+        }
         e => anyhow::Error::new(e).context(format!("solving {file} failed")),
     }
 }
