@@ -251,3 +251,52 @@ fn build_columns(mesh: &Mesh, dofs: &DofMap) -> (Vec<usize>, Vec<usize>) {
     }
     (col_ptr, row_idx)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::fem::dofs::NodeConstraint;
+    use crate::mesh::structured::rectangle;
+
+    #[test]
+    fn pattern_is_structurally_symmetric_with_full_diagonal_and_no_pressure_coupling() {
+        let mesh = rectangle([0.0, 0.0], [1.0, 1.0], 3, 3, |_, _| [0.0, 0.0]).unwrap();
+        let mut constraints = vec![NodeConstraint::Free; mesh.nodes.len()];
+        constraints[2] = NodeConstraint::Fixed([0.0, 0.0]);
+        let pattern = SystemPattern::new(&mesh, DofMap::new(&mesh, &constraints, None)).unwrap();
+        let (cp, ri) = (pattern.col_ptr(), pattern.row_idx());
+        let has = |r: usize, c: usize| ri[cp[c]..cp[c + 1]].binary_search(&r).is_ok();
+        for col in 0..pattern.n() {
+            assert!(has(col, col), "diagonal of {col}");
+            for &row in &ri[cp[col]..cp[col + 1]] {
+                assert!(has(col, row), "({row}, {col}) without its transpose");
+                let both_pressure =
+                    pattern.dofs().is_pressure(row) && pattern.dofs().is_pressure(col);
+                assert!(!both_pressure || row == col, "pressure coupling ({row}, {col})");
+            }
+        }
+    }
+
+    #[test]
+    fn scatter_moves_fixed_values_to_the_right_hand_side() {
+        // A kernel whose velocity entries are all 1 and whose load is 0: a fixed value v at a
+        // node then contributes −v to every free row of each cell touching that node.
+        let mesh = rectangle([0.0, 0.0], [1.0, 1.0], 2, 2, |_, _| [0.0, 0.0]).unwrap();
+        let mut constraints = vec![NodeConstraint::Free; mesh.nodes.len()];
+        constraints[0] = NodeConstraint::Fixed([2.0, 0.0]);
+        let pattern = SystemPattern::new(&mesh, DofMap::new(&mesh, &constraints, None)).unwrap();
+        let system = assemble(&pattern, &mesh, Parallelism::Serial, |_, local| {
+            local.clear();
+            for i in 0..LOCAL_VELOCITY {
+                for j in 0..LOCAL_VELOCITY {
+                    local.matrix[i][j] = 1.0;
+                }
+            }
+        });
+        let cells_with_node0 = mesh.cells.iter().filter(|c| c.contains(&0)).count() as f64;
+        // Each cell touching node 0 has 10 free local velocity rows (the other 5 nodes, 2
+        // components), each receiving −(1 · 2 + 1 · 0) = −2.
+        let total: f64 = system.rhs[..pattern.dofs().n_velocity_dofs()].iter().sum();
+        assert!((total + 2.0 * cells_with_node0 * 10.0).abs() < 1e-12, "total {total}");
+    }
+}
