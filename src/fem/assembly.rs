@@ -147,24 +147,28 @@ impl SystemPattern {
 
     /// Scatters one local system of `cell` into `out` (see the module docs).
     fn scatter(&self, mesh: &Mesh, cell: usize, local: &LocalSystem, out: &mut AssembledSystem) {
-        let dofs = self.dofs.cell_dofs(&mesh.cells[cell]);
+        // Per local unknown: global row (or none), weight (0 when fixed), fixed value (0 when free).
+        let mut row = [usize::MAX; LOCAL_SIZE];
+        let mut weight = [0.0; LOCAL_SIZE];
+        let mut fixed = [0.0; LOCAL_SIZE];
+        for (i, d) in self.dofs.cell_dofs(&mesh.cells[cell]).iter().enumerate() {
+            match *d {
+                ComponentDof::Free { dof, weight: w } => (row[i], weight[i]) = (dof, w),
+                ComponentDof::Fixed(v) => fixed[i] = v,
+            }
+        }
         let positions = &self.positions[cell * LOCAL_ENTRIES..(cell + 1) * LOCAL_ENTRIES];
-        for (i, di) in dofs.iter().enumerate() {
-            let ComponentDof::Free { dof: row, weight: wi } = *di else { continue };
+        for i in (0..LOCAL_SIZE).filter(|&i| row[i] != usize::MAX) {
+            let k = &local.matrix[i];
+            let pos = &positions[i * LOCAL_SIZE..(i + 1) * LOCAL_SIZE];
             let mut load = local.load[i];
-            for (j, dj) in dofs.iter().enumerate() {
-                let k = local.matrix[i][j];
-                match *dj {
-                    ComponentDof::Fixed(value) => load -= k * value,
-                    ComponentDof::Free { weight: wj, .. } => {
-                        let p = positions[i * LOCAL_SIZE + j];
-                        if p != NOT_STORED {
-                            out.values[p as usize] += wi * wj * k;
-                        }
-                    }
+            for j in 0..LOCAL_SIZE {
+                load -= k[j] * fixed[j];
+                if pos[j] != NOT_STORED {
+                    out.values[pos[j] as usize] += weight[i] * weight[j] * k[j];
                 }
             }
-            out.rhs[row] += wi * load;
+            out.rhs[row[i]] += weight[i] * load;
         }
     }
 }
