@@ -776,3 +776,41 @@ fn solve_info_reports_sizes_and_refinement() {
     assert!(info.nnz > info.n_velocity_dofs + info.n_pressure_dofs);
     assert!(info.refinement_steps <= SolverParams::default().max_refinement_steps);
 }
+
+#[test]
+fn refactorization_reuses_the_analysis_for_scaled_values() {
+    // Scaling the whole matrix by 2 halves the solution (linearity); both factorisation kinds
+    // refactor into existing storage on one symbolic analysis. Tolerance: residual target
+    // 1e-10 times a conditioning margin of 100.
+    let mesh = channel_mesh();
+    let conditions = [
+        BoundaryCondition::NoSlip,
+        BoundaryCondition::Outflow,
+        BoundaryCondition::NoSlip,
+        inflow(),
+    ];
+    let constraints = cornerflow::solver::resolve_boundary(&mesh, &conditions, 0.0).unwrap();
+    let (dofs, _) = stokes_dof_map(&mesh, &constraints, 1e-8).unwrap();
+    let pattern = SystemPattern::new(&mesh, dofs).unwrap();
+    let system = assemble_stokes(
+        &pattern,
+        &mesh,
+        &problem(0.2, &conditions, ViscousForm::Gradient),
+        Parallelism::Serial,
+    )
+    .unwrap();
+    let doubled: Vec<f64> = system.values.iter().map(|v| 2.0 * v).collect();
+    for kind in [SolverKind::Ldlt, SolverKind::Lu] {
+        let linear = SolverParams { kind, ..Default::default() }.linear();
+        let symbolic = SymbolicSystem::analyse(&pattern, kind).unwrap();
+        let mut factor = symbolic.factorize(&pattern, &system.values, &linear).unwrap();
+        let (x1, _) =
+            symbolic.solve(&pattern, &system.values, &factor, &system.rhs, &linear).unwrap();
+        symbolic.refactorize(&pattern, &doubled, &linear, &mut factor).unwrap();
+        let (x2, info) = symbolic.solve(&pattern, &doubled, &factor, &system.rhs, &linear).unwrap();
+        let scale = x1.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
+        let diff = x1.iter().zip(&x2).fold(0.0_f64, |m, (a, b)| m.max((a - 2.0 * b).abs()));
+        assert!(diff <= 1e-8 * scale, "{kind:?}: {diff:e}");
+        assert!(info.relative_residual <= 1e-10);
+    }
+}

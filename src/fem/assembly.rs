@@ -187,13 +187,30 @@ pub fn assemble(
     parallelism: Parallelism,
     kernel: impl Fn(usize, &mut LocalSystem) + Sync,
 ) -> AssembledSystem {
-    let mut out = AssembledSystem { values: vec![0.0; pattern.nnz()], rhs: vec![0.0; pattern.n()] };
+    let mut out = AssembledSystem { values: Vec::new(), rhs: Vec::new() };
+    assemble_into(pattern, mesh, parallelism, &mut out, kernel);
+    out
+}
+
+/// Like [`assemble`], but reuses the storage of `out` (resized and zeroed first): the form
+/// for repeated assembly in time or Newton loops.
+pub fn assemble_into(
+    pattern: &SystemPattern,
+    mesh: &Mesh,
+    parallelism: Parallelism,
+    out: &mut AssembledSystem,
+    kernel: impl Fn(usize, &mut LocalSystem) + Sync,
+) {
+    out.values.clear();
+    out.values.resize(pattern.nnz(), 0.0);
+    out.rhs.clear();
+    out.rhs.resize(pattern.n(), 0.0);
     match parallelism {
         Parallelism::Serial => {
             let mut local = LocalSystem::default();
             for cell in 0..mesh.cells.len() {
                 kernel(cell, &mut local);
-                pattern.scatter(mesh, cell, &local, &mut out);
+                pattern.scatter(mesh, cell, &local, out);
             }
         }
         Parallelism::Rayon => {
@@ -203,12 +220,11 @@ pub fn assemble(
                 let batch = &mut buffer[..end - start];
                 batch.par_iter_mut().enumerate().for_each(|(k, local)| kernel(start + k, local));
                 for (k, local) in batch.iter().enumerate() {
-                    pattern.scatter(mesh, start + k, local, &mut out);
+                    pattern.scatter(mesh, start + k, local, out);
                 }
             }
         }
     }
-    out
 }
 
 /// Builds the CSC columns: for each unknown, the sorted unknowns of every cell that touches

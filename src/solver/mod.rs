@@ -29,7 +29,9 @@ pub mod linear;
 use std::time::{Duration, Instant};
 
 use crate::case::{BoundaryCondition, ScalarExpr};
-use crate::fem::assembly::{AssembledSystem, Parallelism, PatternError, SystemPattern, assemble};
+use crate::fem::assembly::{
+    AssembledSystem, Parallelism, PatternError, SystemPattern, assemble_into,
+};
 use crate::fem::dofs::DofMap;
 use crate::fem::kernels::stokes_local_system;
 use crate::fem::shape::AffineTriangle;
@@ -261,20 +263,36 @@ pub fn assemble_stokes(
     problem: &StokesProblem,
     parallelism: Parallelism,
 ) -> Result<AssembledSystem, SolveError> {
+    let mut system = AssembledSystem { values: Vec::new(), rhs: Vec::new() };
+    assemble_stokes_into(pattern, mesh, problem, parallelism, &mut system)?;
+    Ok(system)
+}
+
+/// Like [`assemble_stokes`], reusing the storage of `system`.
+///
+/// # Errors
+/// [`SolveError::NonFiniteBodyForce`] as for [`assemble_stokes`].
+pub fn assemble_stokes_into(
+    pattern: &SystemPattern,
+    mesh: &Mesh,
+    problem: &StokesProblem,
+    parallelism: Parallelism,
+    system: &mut AssembledSystem,
+) -> Result<(), SolveError> {
     let time = problem.time;
     let force_closure = problem
         .body_force
         .map(|[fx, fy]| move |x: f64, y: f64| [fx.eval(x, y, time), fy.eval(x, y, time)]);
     let force: Option<&(dyn Fn(f64, f64) -> [f64; 2] + Sync)> =
         force_closure.as_ref().map(|f| f as &(dyn Fn(f64, f64) -> [f64; 2] + Sync));
-    let system = assemble(pattern, mesh, parallelism, |cell, local| {
+    assemble_into(pattern, mesh, parallelism, system, |cell, local| {
         let tri = AffineTriangle::new(mesh.cell_vertices(cell));
         stokes_local_system(&tri, problem.viscosity, problem.viscous_form, force, local);
     });
     if system.rhs.iter().any(|v| !v.is_finite()) {
         return Err(SolveError::NonFiniteBodyForce);
     }
-    Ok(system)
+    Ok(())
 }
 
 /// Builds the flow field from the solution vector; when the pressure was pinned, shifts it
