@@ -30,7 +30,7 @@ use std::time::{Duration, Instant};
 
 use crate::case::{BoundaryCondition, ScalarExpr};
 use crate::fem::assembly::{
-    AssembledSystem, Parallelism, PatternError, SystemPattern, assemble_into,
+    AssembledSystem, Parallelism, PatternError, SystemPattern, VelocityCoupling, assemble_into,
 };
 use crate::fem::dofs::DofMap;
 use crate::fem::kernels::stokes_local_system;
@@ -157,6 +157,10 @@ pub enum SolveError {
     IncompatibleFlux { flux: f64, absolute: f64 },
     #[error(transparent)]
     Pattern(#[from] PatternError),
+    #[error(
+        "{dropped} nonzero element entries have no slot in the sparsity pattern (viscous form and velocity coupling do not match)"
+    )]
+    PatternMismatch { dropped: usize },
     #[error("{stage} factorization failed: {reason}")]
     Factorization { stage: &'static str, reason: String },
     #[error("solution is not finite after {steps} refinement steps (numerically singular system)")]
@@ -191,7 +195,7 @@ pub fn solve_stokes(
     let start = Instant::now();
     let constraints = resolve_boundary(mesh, problem.conditions, problem.time)?;
     let (dofs, flux) = stokes_dof_map(mesh, &constraints, params.flux_tolerance)?;
-    let pattern = SystemPattern::new(mesh, dofs)?;
+    let pattern = SystemPattern::new(mesh, dofs, velocity_coupling(problem.viscous_form))?;
     timings.pattern = start.elapsed();
 
     let start = Instant::now();
@@ -222,6 +226,15 @@ pub fn solve_stokes(
         boundary_flux: flux,
     };
     Ok((field, info))
+}
+
+/// The velocity couplings the viscous form needs: like components only for the gradient
+/// form (its `u`–`v` blocks vanish), all for the symmetric form.
+pub fn velocity_coupling(form: ViscousForm) -> VelocityCoupling {
+    match form {
+        ViscousForm::Gradient => VelocityCoupling::SameComponent,
+        ViscousForm::Symmetric => VelocityCoupling::Full,
+    }
 }
 
 /// Numbers the unknowns for the given constraints. In a closed domain (no outflow part) the
@@ -256,14 +269,15 @@ pub fn stokes_dof_map(
 ///
 /// # Errors
 /// [`SolveError::NonFiniteBodyForce`] when the body force evaluates to NaN or ±∞ at a
-/// quadrature point (the right-hand side is then not finite).
+/// quadrature point (the right-hand side is then not finite);
+/// [`SolveError::PatternMismatch`] when the pattern lacks couplings the viscous form needs.
 pub fn assemble_stokes(
     pattern: &SystemPattern,
     mesh: &Mesh,
     problem: &StokesProblem,
     parallelism: Parallelism,
 ) -> Result<AssembledSystem, SolveError> {
-    let mut system = AssembledSystem { values: Vec::new(), rhs: Vec::new() };
+    let mut system = AssembledSystem { values: Vec::new(), rhs: Vec::new(), dropped_entries: 0 };
     assemble_stokes_into(pattern, mesh, problem, parallelism, &mut system)?;
     Ok(system)
 }
@@ -271,7 +285,9 @@ pub fn assemble_stokes(
 /// Like [`assemble_stokes`], reusing the storage of `system`.
 ///
 /// # Errors
-/// [`SolveError::NonFiniteBodyForce`] as for [`assemble_stokes`].
+/// [`SolveError::NonFiniteBodyForce`] as for [`assemble_stokes`];
+/// [`SolveError::PatternMismatch`] when the pattern lacks couplings the viscous form needs
+/// (see [`velocity_coupling`]).
 pub fn assemble_stokes_into(
     pattern: &SystemPattern,
     mesh: &Mesh,
@@ -289,6 +305,9 @@ pub fn assemble_stokes_into(
         let tri = AffineTriangle::new(mesh.cell_vertices(cell));
         stokes_local_system(&tri, problem.viscosity, problem.viscous_form, force, local);
     });
+    if system.dropped_entries > 0 {
+        return Err(SolveError::PatternMismatch { dropped: system.dropped_entries });
+    }
     if system.rhs.iter().any(|v| !v.is_finite()) {
         return Err(SolveError::NonFiniteBodyForce);
     }
