@@ -3,7 +3,9 @@
 //! solve is timed stage by stage (pattern, assembly, symbolic, numeric, solve).
 //!
 //! Run: `cargo bench --bench assembly`. Set `CORNERFLOW_BENCH_SOLVE_N=<cells per side>` to
-//! change the size of the timed solve (default 160, about 255k unknowns); 0 skips it.
+//! change the size of the timed solve (default 160, about 230k unknowns; 0 skips it) and
+//! `CORNERFLOW_BENCH_SOLVE_FORM=symmetric` to time it with the symmetric viscous form (full
+//! velocity coupling in the pattern).
 
 use std::hint::black_box;
 
@@ -85,19 +87,28 @@ fn report_solve_stages() {
         viscosity: 1e-3,
         conditions: &conditions,
         body_force: None,
-        viscous_form: ViscousForm::Gradient,
+        viscous_form: if std::env::var("CORNERFLOW_BENCH_SOLVE_FORM")
+            .is_ok_and(|f| f == "symmetric")
+        {
+            ViscousForm::Symmetric
+        } else {
+            ViscousForm::Gradient
+        },
         time: 0.0,
     };
     match solve_stokes(&mesh, &problem, &SolverParams::default()) {
         Ok((_, info)) => println!(
-            "steady Stokes solve, {} triangles, {} unknowns ({} velocity + {} pressure), nnz {}: \
+            "steady Stokes solve ({:?} form), {} triangles, {} unknowns ({} velocity + {} pressure), nnz {}, \
+             factor entries {:?}: \
              pattern {:.3} s, assembly {:.3} s, symbolic {:.3} s, numeric {:.3} s, solve {:.3} s \
              ({} refinement steps, relative residual {:.1e})",
+            problem.viscous_form,
             mesh.n_cells(),
             info.n_velocity_dofs + info.n_pressure_dofs,
             info.n_velocity_dofs,
             info.n_pressure_dofs,
             info.nnz,
+            info.factor_entries,
             info.timings.pattern.as_secs_f64(),
             info.timings.assembly.as_secs_f64(),
             info.timings.symbolic.as_secs_f64(),

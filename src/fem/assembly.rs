@@ -6,10 +6,12 @@
 //! its index in the CSC values. [`assemble`] then turns local systems into global values and a
 //! right-hand side by a pure scatter; local systems are computed serially or with rayon.
 //!
-//! The pattern holds every velocity–velocity and velocity–pressure coupling of a cell (so a
-//! nonsymmetric convection block fits the same pattern) and the pressure diagonal (for a
-//! static regularisation), but no off-diagonal pressure–pressure entry: local kernels must
-//! leave that block zero.
+//! The pattern holds the velocity–velocity couplings of a cell chosen by
+//! [`VelocityCoupling`] (all of them, or like components only), every velocity–pressure
+//! coupling and the pressure diagonal (for a static regularisation), but no off-diagonal
+//! pressure–pressure entry. Both triangles are stored, so a nonsymmetric convection block fits
+//! the same pattern. A nonzero local entry without a slot is counted in
+//! [`AssembledSystem::dropped_entries`], never silently lost.
 //!
 //! **Invariant:** the pattern depends only on the mesh and the dof layout, never on values;
 //! numeric assembly never allocates per entry.

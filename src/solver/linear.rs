@@ -165,6 +165,15 @@ impl SymbolicSystem {
         Ok(SymbolicSystem { kind, signs })
     }
 
+    /// Number of stored factor entries (`L` of `LDLᵀ`; `None` for LU, whose size is known
+    /// only after the numeric factorisation).
+    pub fn factor_entries(&self) -> Option<usize> {
+        match &self.kind {
+            SymbolicKind::Ldlt(sym) => Some(sym.len_val()),
+            SymbolicKind::Lu(_) => None,
+        }
+    }
+
     /// Factorises the matrix with `values` on `pattern` (the analysed one).
     ///
     /// # Errors

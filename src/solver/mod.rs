@@ -123,6 +123,8 @@ pub struct SolveInfo {
     pub n_pressure_dofs: usize,
     /// Stored entries of the (full, both triangles) system matrix.
     pub nnz: usize,
+    /// Stored entries of the `LDLᵀ` factor (`None` with LU).
+    pub factor_entries: Option<usize>,
     pub timings: StageTimings,
     pub refinement_steps: usize,
     pub relative_residual: f64,
@@ -219,6 +221,7 @@ pub fn solve_stokes(
         n_velocity_dofs: pattern.dofs().n_velocity_dofs(),
         n_pressure_dofs: pattern.dofs().n_pressure_dofs(),
         nnz: pattern.nnz(),
+        factor_entries: symbolic.factor_entries(),
         timings,
         refinement_steps: refinement.steps,
         relative_residual: refinement.relative_residual,
