@@ -11,12 +11,12 @@ use std::hint::black_box;
 
 use cornerflow::case::{BoundaryCondition, ScalarExpr};
 use cornerflow::fem::ViscousForm;
-use cornerflow::fem::assembly::{Parallelism, SystemPattern};
+use cornerflow::fem::assembly::{Parallelism, SystemPattern, VelocityCoupling};
 use cornerflow::mesh::Mesh;
 use cornerflow::mesh::structured::rectangle;
 use cornerflow::solver::{
     SolverParams, StokesProblem, assemble_stokes, assemble_stokes_into, resolve_boundary,
-    solve_stokes, stokes_dof_map, velocity_coupling,
+    solve_stokes, stokes_dof_map,
 };
 use criterion::{Criterion, Throughput};
 
@@ -47,8 +47,7 @@ fn bench_assembly(c: &mut Criterion) {
     };
     let constraints = resolve_boundary(&mesh, &conditions, 0.0).expect("valid conditions");
     let (dofs, _) = stokes_dof_map(&mesh, &constraints, 1e-8).expect("open channel");
-    let pattern = SystemPattern::new(&mesh, dofs, velocity_coupling(ViscousForm::Gradient))
-        .expect("pattern fits");
+    let pattern = SystemPattern::new(&mesh, dofs, VelocityCoupling::Full).expect("pattern fits");
     let mut group = c.benchmark_group("stokes_assembly");
     group.sample_size(10);
     group.throughput(Throughput::Elements(mesh.n_cells() as u64));
