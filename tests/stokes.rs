@@ -12,7 +12,7 @@ use cornerflow::mesh::Mesh;
 use cornerflow::mesh::structured::rectangle;
 use cornerflow::solver::{
     BoundaryConstraints, SolveError, SolveInfo, SolverKind, SolverParams, StokesProblem,
-    SymbolicSystem, assemble_stokes, expand_field, solve_stokes, stokes_dof_map,
+    SymbolicSystem, assemble_stokes, expand_field, solve_stokes, stokes_dof_map, velocity_coupling,
 };
 
 // ---------------------------------------------------------------------------------------
@@ -506,7 +506,8 @@ fn verfurth_errors(n: usize, alpha: f64) -> ErrorNorms {
     let constraints = BoundaryConstraints { nodes, pressure_level_free: false };
     let params = SolverParams::default();
     let (dofs, _) = stokes_dof_map(&mesh, &constraints, params.flux_tolerance).unwrap();
-    let pattern = SystemPattern::new(&mesh, dofs).unwrap();
+    let pattern =
+        SystemPattern::new(&mesh, dofs, velocity_coupling(ViscousForm::Gradient)).unwrap();
     let problem = problem(1.0, &[], ViscousForm::Gradient);
     let system = assemble_stokes(&pattern, &mesh, &problem, Parallelism::Rayon).unwrap();
     let linear = params.linear();
@@ -581,7 +582,7 @@ fn parallel_assembly_equals_serial_assembly() {
         let problem = StokesProblem { body_force: Some(&force), ..problem(0.3, &conditions, form) };
         let constraints = cornerflow::solver::resolve_boundary(&mesh, &conditions, 0.0).unwrap();
         let (dofs, _) = stokes_dof_map(&mesh, &constraints, 1e-8).unwrap();
-        let pattern = SystemPattern::new(&mesh, dofs).unwrap();
+        let pattern = SystemPattern::new(&mesh, dofs, velocity_coupling(form)).unwrap();
         let serial = assemble_stokes(&pattern, &mesh, &problem, Parallelism::Serial).unwrap();
         let rayon = assemble_stokes(&pattern, &mesh, &problem, Parallelism::Rayon).unwrap();
         // Both modes scatter in element order, so the sums agree to round-off (n·eps of the
@@ -775,4 +776,83 @@ fn solve_info_reports_sizes_and_refinement() {
     assert_eq!(info.n_pressure_dofs, mesh.n_vertices);
     assert!(info.nnz > info.n_velocity_dofs + info.n_pressure_dofs);
     assert!(info.refinement_steps <= SolverParams::default().max_refinement_steps);
+}
+
+#[test]
+fn refactorization_reuses_the_analysis_for_scaled_values() {
+    // Scaling the whole matrix by 2 halves the solution (linearity); both factorisation kinds
+    // refactor into existing storage on one symbolic analysis. Tolerance: residual target
+    // 1e-10 times a conditioning margin of 100.
+    let mesh = channel_mesh();
+    let conditions = [
+        BoundaryCondition::NoSlip,
+        BoundaryCondition::Outflow,
+        BoundaryCondition::NoSlip,
+        inflow(),
+    ];
+    let constraints = cornerflow::solver::resolve_boundary(&mesh, &conditions, 0.0).unwrap();
+    let (dofs, _) = stokes_dof_map(&mesh, &constraints, 1e-8).unwrap();
+    let pattern =
+        SystemPattern::new(&mesh, dofs, velocity_coupling(ViscousForm::Gradient)).unwrap();
+    let system = assemble_stokes(
+        &pattern,
+        &mesh,
+        &problem(0.2, &conditions, ViscousForm::Gradient),
+        Parallelism::Serial,
+    )
+    .unwrap();
+    let doubled: Vec<f64> = system.values.iter().map(|v| 2.0 * v).collect();
+    for kind in [SolverKind::Ldlt, SolverKind::Lu] {
+        let linear = SolverParams { kind, ..Default::default() }.linear();
+        let symbolic = SymbolicSystem::analyse(&pattern, kind).unwrap();
+        let mut factor = symbolic.factorize(&pattern, &system.values, &linear).unwrap();
+        let (x1, _) =
+            symbolic.solve(&pattern, &system.values, &factor, &system.rhs, &linear).unwrap();
+        symbolic.refactorize(&pattern, &doubled, &linear, &mut factor).unwrap();
+        let (x2, info) = symbolic.solve(&pattern, &doubled, &factor, &system.rhs, &linear).unwrap();
+        let scale = x1.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
+        let diff = x1.iter().zip(&x2).fold(0.0_f64, |m, (a, b)| m.max((a - 2.0 * b).abs()));
+        assert!(diff <= 1e-8 * scale, "{kind:?}: {diff:e}");
+        assert!(info.relative_residual <= 1e-10);
+    }
+}
+
+#[test]
+fn reduced_velocity_coupling_fits_the_gradient_form_only() {
+    // The gradient form has no u–v coupling, so the SameComponent pattern holds it exactly
+    // (same solution as the full pattern, fewer nonzeros); the symmetric form does not fit
+    // and is refused instead of silently dropping entries.
+    use cornerflow::fem::assembly::VelocityCoupling;
+    let mesh = channel_mesh();
+    let conditions = [
+        BoundaryCondition::NoSlip,
+        BoundaryCondition::Outflow,
+        BoundaryCondition::NoSlip,
+        inflow(),
+    ];
+    let constraints = cornerflow::solver::resolve_boundary(&mesh, &conditions, 0.0).unwrap();
+    let solve = |coupling, form| {
+        let (dofs, _) = stokes_dof_map(&mesh, &constraints, 1e-8).unwrap();
+        let pattern = SystemPattern::new(&mesh, dofs, coupling).unwrap();
+        let system = assemble_stokes(
+            &pattern,
+            &mesh,
+            &problem(0.2, &conditions, form),
+            Parallelism::Serial,
+        )?;
+        let linear = SolverParams::default().linear();
+        let symbolic = SymbolicSystem::analyse(&pattern, linear.kind)?;
+        let factor = symbolic.factorize(&pattern, &system.values, &linear)?;
+        let (x, _) = symbolic.solve(&pattern, &system.values, &factor, &system.rhs, &linear)?;
+        Ok::<_, SolveError>((x, pattern.nnz()))
+    };
+    let (full, nnz_full) = solve(VelocityCoupling::Full, ViscousForm::Gradient).unwrap();
+    let (reduced, nnz_reduced) =
+        solve(VelocityCoupling::SameComponent, ViscousForm::Gradient).unwrap();
+    assert!(nnz_reduced < nnz_full, "{nnz_reduced} vs {nnz_full}");
+    let scale = full.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
+    // Both solve the same system to the residual target 1e-10 (margin 100 for conditioning).
+    assert!(full.iter().zip(&reduced).all(|(a, b)| (a - b).abs() <= 1e-8 * scale));
+    let err = solve(VelocityCoupling::SameComponent, ViscousForm::Symmetric).unwrap_err();
+    assert!(matches!(err, SolveError::PatternMismatch { dropped } if dropped > 0), "{err:?}");
 }

@@ -171,3 +171,35 @@ fn number_node(constraint: NodeConstraint, next: &mut usize) -> [ComponentDof; 2
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::mesh::structured::rectangle;
+
+    #[test]
+    fn numbering_skips_fixed_nodes_and_gives_slip_nodes_one_unknown() {
+        let mesh = rectangle([0.0, 0.0], [1.0, 1.0], 2, 2, |_, _| [0.0, 0.0]).unwrap();
+        let mut constraints = vec![NodeConstraint::Free; mesh.nodes.len()];
+        constraints[0] = NodeConstraint::Fixed([1.0, 2.0]);
+        constraints[1] = NodeConstraint::Slip { tangent: [3.0, 4.0] };
+        let map = DofMap::new(&mesh, &constraints, Some(4));
+        assert_eq!(map.n_velocity_dofs(), 2 * (mesh.nodes.len() - 2) + 1);
+        assert_eq!(map.n_pressure_dofs(), mesh.n_vertices - 1);
+        assert_eq!(map.velocity(0), [ComponentDof::Fixed(1.0), ComponentDof::Fixed(2.0)]);
+        assert_eq!(
+            map.velocity(1),
+            [
+                ComponentDof::Free { dof: 0, weight: 0.6 },
+                ComponentDof::Free { dof: 0, weight: 0.8 }
+            ]
+        );
+        assert_eq!(map.pressure(4), ComponentDof::Fixed(0.0));
+        // Expansion fills in fixed values and rotates the slip unknown back to (u, v).
+        let x: Vec<f64> = (0..map.n_dofs()).map(|d| d as f64 + 1.0).collect();
+        let (u, p) = map.expand(&x);
+        assert_eq!(u[0], [1.0, 2.0]);
+        assert!((u[1][0] - 0.6).abs() < 1e-15 && (u[1][1] - 0.8).abs() < 1e-15);
+        assert_eq!(p[4], 0.0);
+    }
+}

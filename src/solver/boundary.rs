@@ -232,3 +232,51 @@ fn straight_line_tangent(points: &[Point]) -> Result<[f64; 2], f64> {
         .fold(0.0, f64::max);
     if deviation > STRAIGHTNESS_TOLERANCE { Err(deviation) } else { Ok(t) }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn corner_precedence_is_noslip_velocity_slip_outflow() {
+        let slip = Claim::Slip { tangent: [1.0, 0.0] };
+        let order = [
+            Claim::None,
+            Claim::Outflow,
+            slip,
+            Claim::SlipCorner,
+            Claim::Velocity { part: 3 },
+            Claim::NoSlip,
+        ];
+        for (i, a) in order.iter().enumerate() {
+            for b in &order[i..] {
+                assert_eq!(a.merge(*b), *b, "{a:?} meets {b:?}");
+                assert_eq!(b.merge(*a), *b, "{b:?} meets {a:?}");
+            }
+        }
+        assert_eq!(
+            Claim::Velocity { part: 5 }.merge(Claim::Velocity { part: 2 }),
+            Claim::Velocity { part: 2 }
+        );
+    }
+
+    #[test]
+    fn slip_parts_meeting_at_an_angle_fix_the_node() {
+        let a = Claim::Slip { tangent: [1.0, 0.0] };
+        let b = Claim::Slip { tangent: [0.6, 0.8] };
+        let c = Claim::Slip { tangent: [-1.0, 0.0] };
+        assert_eq!(a.merge(b), Claim::SlipCorner);
+        assert_eq!(a.merge(c), a, "collinear slip parts keep the slip");
+    }
+
+    #[test]
+    fn straightness_check_accepts_lines_and_refuses_kinks() {
+        let line = [[0.0, 0.0], [0.5, 0.25], [1.0, 0.5], [2.0, 1.0]];
+        let t = straight_line_tangent(&line).unwrap();
+        assert!(
+            (t[0] - 2.0 / 5f64.sqrt()).abs() < 1e-15 && (t[1] - 1.0 / 5f64.sqrt()).abs() < 1e-15
+        );
+        let kink = [[0.0, 0.0], [1.0, 0.0], [1.0, 1e-3]];
+        assert!(straight_line_tangent(&kink).is_err());
+    }
+}

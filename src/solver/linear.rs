@@ -20,6 +20,8 @@
 //! (iterative refinement; from memory). R.J. Vanderbei, *Symmetric quasidefinite matrices*,
 //! SIAM J. Optim. 5 (1995) 100–113 (stable `LDLᵀ` of regularised saddle points; from memory).
 
+use std::borrow::Cow;
+
 use faer::dyn_stack::{MemBuffer, MemStack};
 use faer::linalg::cholesky::ldlt::factor::LdltRegularization;
 use faer::sparse::SparseColMatRef;
@@ -163,6 +165,15 @@ impl SymbolicSystem {
         Ok(SymbolicSystem { kind, signs })
     }
 
+    /// Number of stored factor entries (`L` of `LDLᵀ`; `None` for LU, whose size is known
+    /// only after the numeric factorisation).
+    pub fn factor_entries(&self) -> Option<usize> {
+        match &self.kind {
+            SymbolicKind::Ldlt(sym) => Some(sym.len_val()),
+            SymbolicKind::Lu(_) => None,
+        }
+    }
+
     /// Factorises the matrix with `values` on `pattern` (the analysed one).
     ///
     /// # Errors
@@ -173,63 +184,98 @@ impl SymbolicSystem {
         values: &[f64],
         params: &LinearParams,
     ) -> Result<NumericFactor, SolveError> {
+        let kind = match self.kind {
+            SymbolicKind::Ldlt(_) => NumericKind::Ldlt(Vec::new()),
+            SymbolicKind::Lu(_) => NumericKind::Lu(Box::default()),
+        };
+        let mut factor = NumericFactor { kind };
+        self.refactorize(pattern, values, params, &mut factor)?;
+        Ok(factor)
+    }
+
+    /// Factorises new `values` on the same pattern into the storage of `factor` (no new
+    /// allocation of the factor in time or Newton loops).
+    ///
+    /// # Errors
+    /// [`SolveError::Factorization`] when faer reports a zero pivot or a singular matrix.
+    pub fn refactorize(
+        &self,
+        pattern: &SystemPattern,
+        values: &[f64],
+        params: &LinearParams,
+        factor: &mut NumericFactor,
+    ) -> Result<(), SolveError> {
         let par = faer_par(params.parallelism);
-        let fail = |reason: String| SolveError::Factorization { stage: "numeric", reason };
-        match &self.kind {
-            SymbolicKind::Ldlt(sym) => {
-                let scale = pressure_scale(pattern, values);
-                let (values, regularization) = match params.regularization {
-                    Regularization::Dynamic { delta, epsilon } => (
-                        std::borrow::Cow::Borrowed(values),
-                        LdltRegularization {
-                            dynamic_regularization_signs: Some(&self.signs),
-                            dynamic_regularization_delta: delta * scale,
-                            dynamic_regularization_epsilon: epsilon * scale,
-                        },
-                    ),
-                    Regularization::Static { delta } => (
-                        std::borrow::Cow::Owned(shift_pressure_diagonal(
-                            pattern,
-                            values,
-                            -delta * scale,
-                        )),
-                        LdltRegularization::default(),
-                    ),
-                };
-                let matrix = SparseColMatRef::new(pattern.symbolic(), &values);
-                let mut l_values = vec![0.0; sym.len_val()];
-                let mut buf = MemBuffer::new(
-                    sym.factorize_numeric_ldlt_scratch::<f64>(par, Default::default()),
-                );
-                sym.factorize_numeric_ldlt(
-                    &mut l_values,
-                    matrix,
-                    Side::Lower,
-                    regularization,
-                    par,
-                    MemStack::new(&mut buf),
-                    Default::default(),
-                )
-                .map_err(|e| fail(format!("{e:?}")))?;
-                Ok(NumericFactor { kind: NumericKind::Ldlt(l_values) })
+        match (&self.kind, &mut factor.kind) {
+            (SymbolicKind::Ldlt(sym), NumericKind::Ldlt(l_values)) => {
+                l_values.resize(sym.len_val(), 0.0);
+                self.factorize_ldlt(sym, pattern, values, params.regularization, par, l_values)
             }
-            SymbolicKind::Lu(sym) => {
+            (SymbolicKind::Lu(sym), NumericKind::Lu(numeric)) => {
                 let matrix = SparseColMatRef::new(pattern.symbolic(), values);
-                let mut numeric = NumericLu::new();
-                let mut buf = MemBuffer::new(
-                    sym.factorize_numeric_lu_scratch::<f64>(par, Default::default()),
-                );
+                let scratch = sym.factorize_numeric_lu_scratch::<f64>(par, Default::default());
+                let mut buf = MemBuffer::new(scratch);
                 sym.factorize_numeric_lu(
-                    &mut numeric,
+                    numeric,
                     matrix,
                     par,
                     MemStack::new(&mut buf),
                     Default::default(),
                 )
-                .map_err(|e| fail(format!("{e:?}")))?;
-                Ok(NumericFactor { kind: NumericKind::Lu(Box::new(numeric)) })
+                .map(|_| ())
+                .map_err(|e| numeric_failure(format!("{e:?}")))
+            }
+            (_, kind) => {
+                // A factor of the other kind: start from empty storage of the right kind.
+                *kind = match self.kind {
+                    SymbolicKind::Ldlt(_) => NumericKind::Ldlt(Vec::new()),
+                    SymbolicKind::Lu(_) => NumericKind::Lu(Box::default()),
+                };
+                self.refactorize(pattern, values, params, factor)
             }
         }
+    }
+
+    /// Regularised `LDLᵀ` of `values` into `l_values` (see [`Regularization`]).
+    fn factorize_ldlt(
+        &self,
+        sym: &SymbolicCholesky<usize>,
+        pattern: &SystemPattern,
+        values: &[f64],
+        regularization: Regularization,
+        par: Par,
+        l_values: &mut [f64],
+    ) -> Result<(), SolveError> {
+        let scale = pressure_scale(pattern, values);
+        let (values, regularization) = match regularization {
+            Regularization::Dynamic { delta, epsilon } => (
+                Cow::Borrowed(values),
+                LdltRegularization {
+                    dynamic_regularization_signs: Some(&self.signs),
+                    dynamic_regularization_delta: delta * scale,
+                    dynamic_regularization_epsilon: epsilon * scale,
+                },
+            ),
+            Regularization::Static { delta } => (
+                Cow::Owned(shift_pressure_diagonal(pattern, values, -delta * scale)),
+                LdltRegularization::default(),
+            ),
+        };
+        let matrix = SparseColMatRef::new(pattern.symbolic(), &values);
+        let scratch = sym.factorize_numeric_ldlt_scratch::<f64>(par, Default::default());
+        let mut buf = MemBuffer::new(scratch);
+        let stack = MemStack::new(&mut buf);
+        sym.factorize_numeric_ldlt(
+            l_values,
+            matrix,
+            Side::Lower,
+            regularization,
+            par,
+            stack,
+            Default::default(),
+        )
+        .map(|_| ())
+        .map_err(|e| numeric_failure(format!("{e:?}")))
     }
 
     /// Solves `A x = b` with the factor, then refines against the exact `values` until the
@@ -238,6 +284,9 @@ impl SymbolicSystem {
     /// # Errors
     /// [`SolveError::NonFiniteSolution`] when the solution has NaN/∞ (numerically singular
     /// matrix); [`SolveError::NotConverged`] when the residual target is missed.
+    ///
+    /// # Panics
+    /// When `factor` was not produced by this symbolic system (a programming error).
     pub fn solve(
         &self,
         pattern: &SystemPattern,
@@ -330,6 +379,10 @@ fn shift_pressure_diagonal(pattern: &SystemPattern, values: &[f64], shift: f64) 
         out[pattern.diagonal_position(d)] += shift;
     }
     out
+}
+
+fn numeric_failure(reason: String) -> SolveError {
+    SolveError::Factorization { stage: "numeric", reason }
 }
 
 fn norm(v: &[f64]) -> f64 {

@@ -29,7 +29,9 @@ pub mod linear;
 use std::time::{Duration, Instant};
 
 use crate::case::{BoundaryCondition, ScalarExpr};
-use crate::fem::assembly::{AssembledSystem, Parallelism, PatternError, SystemPattern, assemble};
+use crate::fem::assembly::{
+    AssembledSystem, Parallelism, PatternError, SystemPattern, VelocityCoupling, assemble_into,
+};
 use crate::fem::dofs::DofMap;
 use crate::fem::kernels::stokes_local_system;
 use crate::fem::shape::AffineTriangle;
@@ -121,6 +123,8 @@ pub struct SolveInfo {
     pub n_pressure_dofs: usize,
     /// Stored entries of the (full, both triangles) system matrix.
     pub nnz: usize,
+    /// Stored entries of the `LDLᵀ` factor (`None` with LU).
+    pub factor_entries: Option<usize>,
     pub timings: StageTimings,
     pub refinement_steps: usize,
     pub relative_residual: f64,
@@ -155,6 +159,10 @@ pub enum SolveError {
     IncompatibleFlux { flux: f64, absolute: f64 },
     #[error(transparent)]
     Pattern(#[from] PatternError),
+    #[error(
+        "{dropped} nonzero element entries have no slot in the sparsity pattern (viscous form and velocity coupling do not match)"
+    )]
+    PatternMismatch { dropped: usize },
     #[error("{stage} factorization failed: {reason}")]
     Factorization { stage: &'static str, reason: String },
     #[error("solution is not finite after {steps} refinement steps (numerically singular system)")]
@@ -189,7 +197,9 @@ pub fn solve_stokes(
     let start = Instant::now();
     let constraints = resolve_boundary(mesh, problem.conditions, problem.time)?;
     let (dofs, flux) = stokes_dof_map(mesh, &constraints, params.flux_tolerance)?;
-    let pattern = SystemPattern::new(mesh, dofs)?;
+    // Full coupling even for the gradient form: measured smaller LDLᵀ factors (see
+    // `VelocityCoupling`).
+    let pattern = SystemPattern::new(mesh, dofs, VelocityCoupling::Full)?;
     timings.pattern = start.elapsed();
 
     let start = Instant::now();
@@ -213,6 +223,7 @@ pub fn solve_stokes(
         n_velocity_dofs: pattern.dofs().n_velocity_dofs(),
         n_pressure_dofs: pattern.dofs().n_pressure_dofs(),
         nnz: pattern.nnz(),
+        factor_entries: symbolic.factor_entries(),
         timings,
         refinement_steps: refinement.steps,
         relative_residual: refinement.relative_residual,
@@ -220,6 +231,16 @@ pub fn solve_stokes(
         boundary_flux: flux,
     };
     Ok((field, info))
+}
+
+/// The fewest velocity couplings the viscous form needs: like components only for the
+/// gradient form (its `u`–`v` blocks vanish), all for the symmetric form. [`solve_stokes`]
+/// uses [`VelocityCoupling::Full`] for both (smaller factors, see [`VelocityCoupling`]).
+pub fn velocity_coupling(form: ViscousForm) -> VelocityCoupling {
+    match form {
+        ViscousForm::Gradient => VelocityCoupling::SameComponent,
+        ViscousForm::Symmetric => VelocityCoupling::Full,
+    }
 }
 
 /// Numbers the unknowns for the given constraints. In a closed domain (no outflow part) the
@@ -254,27 +275,49 @@ pub fn stokes_dof_map(
 ///
 /// # Errors
 /// [`SolveError::NonFiniteBodyForce`] when the body force evaluates to NaN or ±∞ at a
-/// quadrature point (the right-hand side is then not finite).
+/// quadrature point (the right-hand side is then not finite);
+/// [`SolveError::PatternMismatch`] when the pattern lacks couplings the viscous form needs.
 pub fn assemble_stokes(
     pattern: &SystemPattern,
     mesh: &Mesh,
     problem: &StokesProblem,
     parallelism: Parallelism,
 ) -> Result<AssembledSystem, SolveError> {
+    let mut system = AssembledSystem { values: Vec::new(), rhs: Vec::new(), dropped_entries: 0 };
+    assemble_stokes_into(pattern, mesh, problem, parallelism, &mut system)?;
+    Ok(system)
+}
+
+/// Like [`assemble_stokes`], reusing the storage of `system`.
+///
+/// # Errors
+/// [`SolveError::NonFiniteBodyForce`] as for [`assemble_stokes`];
+/// [`SolveError::PatternMismatch`] when the pattern lacks couplings the viscous form needs
+/// (see [`velocity_coupling`]).
+pub fn assemble_stokes_into(
+    pattern: &SystemPattern,
+    mesh: &Mesh,
+    problem: &StokesProblem,
+    parallelism: Parallelism,
+    system: &mut AssembledSystem,
+) -> Result<(), SolveError> {
     let time = problem.time;
     let force_closure = problem
         .body_force
         .map(|[fx, fy]| move |x: f64, y: f64| [fx.eval(x, y, time), fy.eval(x, y, time)]);
     let force: Option<&(dyn Fn(f64, f64) -> [f64; 2] + Sync)> =
         force_closure.as_ref().map(|f| f as &(dyn Fn(f64, f64) -> [f64; 2] + Sync));
-    let system = assemble(pattern, mesh, parallelism, |cell, local| {
+    assemble_into(pattern, mesh, parallelism, system, |cell, local| {
         let tri = AffineTriangle::new(mesh.cell_vertices(cell));
         stokes_local_system(&tri, problem.viscosity, problem.viscous_form, force, local);
     });
+    if system.dropped_entries > 0 {
+        return Err(SolveError::PatternMismatch { dropped: system.dropped_entries });
+    }
     if system.rhs.iter().any(|v| !v.is_finite()) {
         return Err(SolveError::NonFiniteBodyForce);
     }
-    Ok(system)
+    Ok(())
 }
 
 /// Builds the flow field from the solution vector; when the pressure was pinned, shifts it
