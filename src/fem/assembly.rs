@@ -44,8 +44,9 @@ pub enum VelocityCoupling {
     /// unknown (which carries both components): enough for the gradient form and for
     /// Oseen/Picard convection, with about a third fewer nonzeros. **But** the `LDLᵀ` factor
     /// came out larger (180M against 141M entries at 608k unknowns, AMD ordering, structured
-    /// square, commit of this note): AMD no longer sees a node's two components as one
-    /// supervariable. Use it for matrix-free or iterative work, not for direct solves.
+    /// unit square, `CORNERFLOW_BENCH_SOLVE_N=260 cargo bench --bench assembly`, 2026-12-02):
+    /// AMD no longer sees a node's two components as one supervariable. Use it for
+    /// matrix-free or iterative work, not for direct solves.
     SameComponent,
 }
 
