@@ -267,6 +267,31 @@ pub fn assemble_into(
     }
 }
 
+/// The cells touching each unknown in CSR form: unknown `d` is touched by
+/// `cells_of[start[d]..start[d + 1]]`.
+fn cells_of_unknowns<I: Iterator<Item = usize>>(
+    mesh: &Mesh,
+    n: usize,
+    free: impl Fn(&[usize; 6]) -> I,
+) -> (Vec<usize>, Vec<usize>) {
+    let mut start = vec![0usize; n + 1];
+    for cell in &mesh.cells {
+        free(cell).for_each(|d| start[d + 1] += 1);
+    }
+    for d in 0..n {
+        start[d + 1] += start[d];
+    }
+    let mut fill = start.clone();
+    let mut cells_of = vec![0usize; start[n]];
+    for (c, cell) in mesh.cells.iter().enumerate() {
+        for d in free(cell) {
+            cells_of[fill[d]] = c;
+            fill[d] += 1;
+        }
+    }
+    (start, cells_of)
+}
+
 /// Class of a velocity unknown carrying both components (slip).
 const MIXED: u8 = 2;
 /// Class of a pressure unknown.
@@ -308,22 +333,7 @@ fn build_columns(
             ComponentDof::Fixed(_) => None,
         })
     };
-    // Incidence unknown -> cells, in CSR form.
-    let mut start = vec![0usize; n + 1];
-    for cell in &mesh.cells {
-        free(cell).for_each(|d| start[d + 1] += 1);
-    }
-    for d in 0..n {
-        start[d + 1] += start[d];
-    }
-    let mut fill = start.clone();
-    let mut cells_of = vec![0usize; start[n]];
-    for (c, cell) in mesh.cells.iter().enumerate() {
-        for d in free(cell) {
-            cells_of[fill[d]] = c;
-            fill[d] += 1;
-        }
-    }
+    let (start, cells_of) = cells_of_unknowns(mesh, n, free);
     let mut col_ptr = Vec::with_capacity(n + 1);
     let mut row_idx = Vec::new();
     let mut rows = Vec::new();
