@@ -44,8 +44,9 @@ pub enum VelocityCoupling {
     /// unknown (which carries both components): enough for the gradient form and for
     /// Oseen/Picard convection, with about a third fewer nonzeros. **But** the `LDLᵀ` factor
     /// came out larger (180M against 141M entries at 608k unknowns, AMD ordering, structured
-    /// square, commit of this note): AMD no longer sees a node's two components as one
-    /// supervariable. Use it for matrix-free or iterative work, not for direct solves.
+    /// unit square, `CORNERFLOW_BENCH_SOLVE_N=260 cargo bench --bench assembly`, 2026-12-02):
+    /// AMD no longer sees a node's two components as one supervariable. Use it for
+    /// matrix-free or iterative work, not for direct solves.
     SameComponent,
 }
 
@@ -266,6 +267,31 @@ pub fn assemble_into(
     }
 }
 
+/// The cells touching each unknown in CSR form: unknown `d` is touched by
+/// `cells_of[start[d]..start[d + 1]]`.
+fn cells_of_unknowns<I: Iterator<Item = usize>>(
+    mesh: &Mesh,
+    n: usize,
+    free: impl Fn(&[usize; 6]) -> I,
+) -> (Vec<usize>, Vec<usize>) {
+    let mut start = vec![0usize; n + 1];
+    for cell in &mesh.cells {
+        free(cell).for_each(|d| start[d + 1] += 1);
+    }
+    for d in 0..n {
+        start[d + 1] += start[d];
+    }
+    let mut fill = start.clone();
+    let mut cells_of = vec![0usize; start[n]];
+    for (c, cell) in mesh.cells.iter().enumerate() {
+        for d in free(cell) {
+            cells_of[fill[d]] = c;
+            fill[d] += 1;
+        }
+    }
+    (start, cells_of)
+}
+
 /// Class of a velocity unknown carrying both components (slip).
 const MIXED: u8 = 2;
 /// Class of a pressure unknown.
@@ -307,22 +333,7 @@ fn build_columns(
             ComponentDof::Fixed(_) => None,
         })
     };
-    // Incidence unknown -> cells, in CSR form.
-    let mut start = vec![0usize; n + 1];
-    for cell in &mesh.cells {
-        free(cell).for_each(|d| start[d + 1] += 1);
-    }
-    for d in 0..n {
-        start[d + 1] += start[d];
-    }
-    let mut fill = start.clone();
-    let mut cells_of = vec![0usize; start[n]];
-    for (c, cell) in mesh.cells.iter().enumerate() {
-        for d in free(cell) {
-            cells_of[fill[d]] = c;
-            fill[d] += 1;
-        }
-    }
+    let (start, cells_of) = cells_of_unknowns(mesh, n, free);
     let mut col_ptr = Vec::with_capacity(n + 1);
     let mut row_idx = Vec::new();
     let mut rows = Vec::new();

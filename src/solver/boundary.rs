@@ -13,7 +13,8 @@
 //! **Slip.** A slip part must be straight; its nodes keep one unknown, the velocity along the
 //! part's unit tangent (the node's two components are rotated to normal/tangent coordinates
 //! and the normal one eliminated). For axis-parallel parts this is exactly "fix the normal
-//! component".
+//! component". On a straight wall with zero normal velocity, `∂u_n/∂t = 0`, so the natural
+//! condition of either viscous form is the same zero tangential stress `ν ∂u_t/∂n = 0`.
 //!
 //! **Invariant:** only conditions and coordinates are read here; no matrix is touched.
 
