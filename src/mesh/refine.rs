@@ -132,3 +132,25 @@ fn lift(
         part_circles: parent.part_circles.clone(),
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use crate::mesh::structured::rectangle;
+
+    #[test]
+    fn red_refinement_of_a_structured_rectangle() {
+        let m = rectangle([0.0, 0.0], [3.0, 2.0], 3, 2, |_, _| [0.0, 0.0]).unwrap();
+        let f = m.refine_uniform(false);
+        f.check_invariants().unwrap();
+        assert_eq!(f.n_cells(), 4 * m.n_cells());
+        assert_eq!(f.boundary_edges.len(), 2 * m.boundary_edges.len());
+        // Exact: 6; the sum of 48 triangle areas carries a few ulps of rounding.
+        assert!((f.area() - 6.0).abs() < 1e-13);
+        // Vertices of the fine mesh: old vertices and old midpoints (elementary count).
+        assert_eq!(f.n_vertices, m.nodes.len());
+        for be in &f.boundary_edges {
+            let [a, b, c] = be.nodes.map(|n| f.nodes[n]);
+            assert_eq!(c, [0.5 * (a[0] + b[0]), 0.5 * (a[1] + b[1])]);
+        }
+    }
+}
