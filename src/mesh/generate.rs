@@ -5,13 +5,17 @@
 //! part ids, with [`MeshStats`]. The stages are:
 //!
 //! 1. validate the domain and controls, estimate the triangle count and refuse above the cap;
-//! 2. split every boundary segment to the local target size (part sizes and grading);
-//! 3. triangulate with spade's constrained Delaunay triangulation and refine it
-//!    (Ruppert/Chew refinement with an angle limit and a global area cap);
-//! 4. reach the local size field by inserting interior points into every triangle larger than
+//! 2. triangulate the input loops with spade's constrained Delaunay triangulation and refine
+//!    it (Ruppert/Chew refinement with an angle limit and a global area cap);
+//! 3. reach the local size field by inserting interior points into every triangle larger than
 //!    `√3/4 · h(centroid)²` and refining again, until none is left;
+//! 4. make refinement split every boundary edge longer than its part size (or 1.25 times the
+//!    local field) by temporarily inserting points that encroach on it: spade splits
+//!    constraint edges itself, which keeps the faces outside the domain well-shaped (boundary
+//!    points computed outside spade are a rounding step off their line, and the slivers they
+//!    leave outside the domain stop spade from splitting segments later);
 //! 5. insert a point into every triangle whose three vertices lie on the boundary (a
-//!    Taylor–Hood element needs an interior vertex) and refine again;
+//!    Taylor–Hood element needs an interior vertex), see [`repair_boundary_triangles`];
 //! 6. recover the part of every boundary edge by walking the chain of split constraint edges
 //!    from each input segment's start to its end (split edges carry no data in spade);
 //! 7. renumber vertices along a Morton (Z-order) curve for locality and lift to P2.
@@ -57,7 +61,7 @@ const MAX_SIZE_PASSES: usize = 60;
 /// are skipped on uniform meshes (common practice, no source).
 const FIELD_BOUNDARY_SLACK: f64 = 1.25;
 
-/// Passes of the boundary-triangle repair before giving up.
+/// Insert-and-refine passes of the boundary-triangle repair before it stops refining.
 const MAX_BOUNDARY_PASSES: usize = 8;
 
 /// Meshes `domain` with six-node triangles.

@@ -6,9 +6,7 @@
 //! part that approximates a circle are moved radially onto the circle, so a refinement
 //! sequence converges to the curved boundary rather than to the initial polygon.
 
-use std::collections::HashMap;
-
-use super::{BoundaryEdge, Mesh, triangle_area};
+use super::{BoundaryEdge, EdgeMap, Mesh, triangle_area};
 use crate::geometry::{Circle, Point};
 
 impl Mesh {
@@ -101,7 +99,8 @@ fn lift(
 ) -> Mesh {
     let n_vertices = vertices.len();
     let mut nodes = vertices;
-    let mut mid_of: HashMap<(usize, usize), usize> = HashMap::with_capacity(3 * children.len());
+    let mut mid_of: EdgeMap<usize> =
+        EdgeMap::with_capacity_and_hasher(3 * children.len(), Default::default());
     let mut cells = Vec::with_capacity(children.len());
     for t in children {
         let mut m = [0; 3];
