@@ -226,6 +226,17 @@ fn channel_mesh_has_all_properties() {
     let domain = channel();
     let (mesh, st) = generate(&domain, &controls(0.03)).unwrap();
     check_generated(&mesh, &domain, 30.0).unwrap();
+    println!(
+        "channel h=0.03: {} triangles, {} nodes, min angle {:.2} (all {:.2}), mean min {:.2}, \
+         max {:.2}, edges per part {:?}",
+        st.n_triangles,
+        st.n_nodes,
+        st.min_angle_deg,
+        st.min_angle_all_deg,
+        st.mean_angle_deg,
+        st.max_angle_deg,
+        st.edges_per_part
+    );
     assert_eq!(st.n_triangles, mesh.n_cells());
     assert_eq!(st.edges_per_part.len(), 4);
     // 64 cylinder segments of length 2·0.05·sin(π/64) = 4.9e-3 < 0.03 are not pre-split, but
