@@ -216,3 +216,32 @@ fn fluid_angle_deg(u: Point, v: Point, w: Point) -> f64 {
 fn dist(a: Point, b: Point) -> f64 {
     (a[0] - b[0]).hypot(a[1] - b[1])
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::mesh::structured::rectangle;
+
+    #[test]
+    fn angles_of_reference_triangles() {
+        let eq = angles_deg([[0.0, 0.0], [1.0, 0.0], [0.5, 3f64.sqrt() / 2.0]]);
+        // Equilateral: 60° each, to rounding of atan2 (1e-12 degrees is ~1e4 ulps of 60).
+        assert!(eq.iter().all(|a| (a - 60.0).abs() < 1e-12), "{eq:?}");
+        let right = angles_deg([[0.0, 0.0], [1.0, 0.0], [0.0, 1.0]]);
+        assert!((right[0] - 90.0).abs() < 1e-12 && (right[1] - 45.0).abs() < 1e-12);
+    }
+
+    #[test]
+    fn structured_rectangle_statistics() {
+        let m = rectangle([0.0, 0.0], [2.0, 1.0], 4, 2, |_, _| [0.0, 0.0]).unwrap();
+        let st = stats(&m);
+        // Cells are halves of 0.5 × 0.5 squares: right isosceles triangles.
+        assert!((st.min_angle_all_deg - 45.0).abs() < 1e-12);
+        assert!((st.max_angle_deg - 90.0).abs() < 1e-12);
+        assert_eq!(st.n_angle_limited, 0, "no corner is sharper than 60°");
+        assert_eq!(st.edges_per_part, vec![4, 2, 4, 2]);
+        assert_eq!(st.n_boundary_triangles, 0);
+        assert!((st.area - 2.0).abs() < 1e-14);
+        assert_eq!(cell_quality(&m).len(), 16);
+    }
+}

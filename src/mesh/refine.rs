@@ -6,9 +6,7 @@
 //! part that approximates a circle are moved radially onto the circle, so a refinement
 //! sequence converges to the curved boundary rather than to the initial polygon.
 
-use std::collections::HashMap;
-
-use super::{BoundaryEdge, Mesh, triangle_area};
+use super::{BoundaryEdge, EdgeMap, Mesh, triangle_area};
 use crate::geometry::{Circle, Point};
 
 impl Mesh {
@@ -101,7 +99,8 @@ fn lift(
 ) -> Mesh {
     let n_vertices = vertices.len();
     let mut nodes = vertices;
-    let mut mid_of: HashMap<(usize, usize), usize> = HashMap::with_capacity(3 * children.len());
+    let mut mid_of: EdgeMap<usize> =
+        EdgeMap::with_capacity_and_hasher(3 * children.len(), Default::default());
     let mut cells = Vec::with_capacity(children.len());
     for t in children {
         let mut m = [0; 3];
@@ -130,5 +129,27 @@ fn lift(
         boundary_edges,
         part_names: parent.part_names.clone(),
         part_circles: parent.part_circles.clone(),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use crate::mesh::structured::rectangle;
+
+    #[test]
+    fn red_refinement_of_a_structured_rectangle() {
+        let m = rectangle([0.0, 0.0], [3.0, 2.0], 3, 2, |_, _| [0.0, 0.0]).unwrap();
+        let f = m.refine_uniform(false);
+        f.check_invariants().unwrap();
+        assert_eq!(f.n_cells(), 4 * m.n_cells());
+        assert_eq!(f.boundary_edges.len(), 2 * m.boundary_edges.len());
+        // Exact: 6; the sum of 48 triangle areas carries a few ulps of rounding.
+        assert!((f.area() - 6.0).abs() < 1e-13);
+        // Vertices of the fine mesh: old vertices and old midpoints (elementary count).
+        assert_eq!(f.n_vertices, m.nodes.len());
+        for be in &f.boundary_edges {
+            let [a, b, c] = be.nodes.map(|n| f.nodes[n]);
+            assert_eq!(c, [0.5 * (a[0] + b[0]), 0.5 * (a[1] + b[1])]);
+        }
     }
 }

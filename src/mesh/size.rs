@@ -166,3 +166,79 @@ fn contains(t: &[Point; 3], p: Point) -> bool {
     let (d0, d1, d2) = (s(t[0], t[1]), s(t[1], t[2]), s(t[2], t[0]));
     (d0 >= 0.0 && d1 >= 0.0 && d2 >= 0.0) || (d0 <= 0.0 && d1 <= 0.0 && d2 <= 0.0)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn controls(size: f64, grading: Vec<Grading>) -> MeshControls {
+        MeshControls { size, part_sizes: vec![], grading, min_angle_deg: 30.0, max_triangles: 1 }
+    }
+
+    #[test]
+    fn uniform_field_counts_area_over_equilateral_area() {
+        let ctl = controls(0.1, vec![]);
+        let field = SizeField::new(&ctl);
+        let t = [[0.0, 0.0], [1.0, 0.0], [0.0, 1.0]];
+        let n = equilateral_count(&[t], &field);
+        // Exact: 0.5 / (√3/4 · 0.01); only rounding (a few ulps) separates them.
+        assert!((n - 0.5 / (EQUILATERAL_AREA * 0.01)).abs() < 1e-12 * n, "{n}");
+    }
+
+    #[test]
+    fn graded_integral_matches_the_closed_form_over_a_disc() {
+        // h = h0 + g r with no cap inside the disc of radius R around the grading point:
+        // ∫ dA / (√3/4 h²) = 2π/(√3/4 g²) · [ln((h0 + gR)/h0) + h0/(h0 + gR) − 1]
+        // (elementary integration of r/(h0 + g r)²).
+        let (h0, g, radius) = (1e-3, 0.3, 1.0);
+        let ctl = controls(10.0, vec![Grading { point: [0.0, 0.0], h_min: h0, growth: g }]);
+        let field = SizeField::new(&ctl);
+        let n = 1024;
+        let fan: Vec<[Point; 3]> = (0..n)
+            .map(|k| {
+                let p = |k: usize| {
+                    let t = 2.0 * std::f64::consts::PI * k as f64 / n as f64;
+                    [radius * t.cos(), radius * t.sin()]
+                };
+                [[0.0, 0.0], p(k), p(k + 1)]
+            })
+            .collect();
+        let hr = h0 + g * radius;
+        let exact = 2.0 * std::f64::consts::PI / (EQUILATERAL_AREA * g * g)
+            * ((hr / h0).ln() + h0 / hr - 1.0);
+        let got = equilateral_count(&fan, &field);
+        // Tolerance: the degree-2 rule misses the cubic Taylor term of 1/h² over cells where
+        // h varies by ≤ 20 %, about 0.2³ ≈ 0.8 % in the worst cell; the 1024-gon misses
+        // (2π/1024)²/6 ≈ 6e-6 of the disc. 1 % bounds both.
+        assert!((got - exact).abs() < 0.01 * exact, "{got} vs {exact}");
+    }
+
+    #[test]
+    fn boundary_integral_is_length_over_size_when_uniform() {
+        let ctl = controls(0.1, vec![]);
+        let field = SizeField::new(&ctl);
+        let cum = cumulative_inverse_size([0.0, 0.0], [2.2, 0.0], None, &field);
+        // ∫ ds / h = 2.2 / 0.1 = 22, up to the rounding of a sum of ≥ 16 terms.
+        assert!((cum[cum.len() - 1] - 22.0).abs() < 1e-12);
+        let cum = cumulative_inverse_size([0.0, 0.0], [2.2, 0.0], Some(0.01), &field);
+        assert!((cum[cum.len() - 1] - 220.0).abs() < 1e-10);
+    }
+
+    #[test]
+    fn lower_bounds_never_exceed_point_values() {
+        let g = Grading { point: [0.3, 0.1], h_min: 0.01, growth: 0.5 };
+        let ctl = controls(0.2, vec![g]);
+        let field = SizeField::new(&ctl);
+        let t = [[0.0, 0.0], [1.0, 0.2], [0.4, 0.9]];
+        let lo = field.min_on_triangle(&t);
+        assert_eq!(lo, 0.01, "the grading point lies inside the triangle");
+        for (a, b) in [(0.2, 0.3), (0.5, 0.1), (0.3, 0.6)] {
+            let p = [
+                a * t[0][0] + b * t[1][0] + (1.0 - a - b) * t[2][0],
+                a * t[0][1] + b * t[1][1] + (1.0 - a - b) * t[2][1],
+            ];
+            assert!(field.at(p) >= lo);
+        }
+        assert!(field.min_on_segment(t[0], t[1]) <= field.at(t[0]).min(field.at(t[1])));
+    }
+}

@@ -222,3 +222,36 @@ fn positive(key: &str, value: f64) -> Result<(), MeshError> {
         Err(invalid(key, value, "must be positive and finite"))
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn segment_contacts() {
+        assert!(segments_touch([0.0, 0.0], [1.0, 1.0], [0.0, 1.0], [1.0, 0.0]), "crossing");
+        assert!(segments_touch([0.0, 0.0], [1.0, 0.0], [0.5, 0.0], [0.5, 1.0]), "T-contact");
+        assert!(segments_touch([0.0, 0.0], [1.0, 0.0], [0.5, 0.0], [2.0, 0.0]), "overlap");
+        assert!(!segments_touch([0.0, 0.0], [1.0, 0.0], [0.0, 0.1], [1.0, 0.1]), "parallel");
+        assert!(!segments_touch([0.0, 0.0], [1.0, 0.0], [1.5, 0.0], [2.0, 0.0]), "collinear gap");
+    }
+
+    #[test]
+    fn ray_casting_inside() {
+        let sq = [[0.0, 0.0], [1.0, 0.0], [1.0, 1.0], [0.0, 1.0]];
+        assert!(inside([0.5, 0.5], &sq));
+        assert!(!inside([1.5, 0.5], &sq));
+    }
+
+    #[test]
+    fn fold_back_is_rejected() {
+        let l = BoundaryLoop {
+            name: "outer".into(),
+            points: vec![[0.0, 0.0], [2.0, 0.0], [1.0, 0.0], [1.0, 1.0]],
+            edge_parts: vec![0; 4],
+            circle: None,
+        };
+        let d = Domain { outer: l, holes: vec![], part_names: vec!["p".into()] };
+        assert!(check_domain(&d).is_err());
+    }
+}
