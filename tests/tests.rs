@@ -7,5 +7,6 @@ mod cli;
 mod corners;
 mod forces;
 mod mesh_props;
+mod pipeline;
 mod stokes;
 mod vtk_roundtrip;
