@@ -134,3 +134,40 @@ fn surface_and_volume_forces_on_a_body_approach_each_other_under_refinement() {
         assert!(w[1] < w[0] / 1.3, "gap did not shrink: {gaps:?}");
     }
 }
+
+#[test]
+fn fitted_exponent_at_the_re_entrant_step_corner_matches_the_prediction() {
+    // Stokes flow over the backward-facing step example: the 270° no-slip corner has
+    // λ₁ = 0.5444837368 (Dauge 1989; benchmarks.md §2.2). The exponent fitted from the gradient
+    // energy in discs around the corner must lie within 0.05 of it (the corner issue's bound).
+    use cornerflow::corners::{
+        AnalysisParams, Classification, measure_singular_corners, try_analyse_corners,
+    };
+    let path = crate::util::repo_root().join("examples/backward-step.toml");
+    let text = std::fs::read_to_string(&path).unwrap();
+    assert!(text.contains("equations = \"navier-stokes\""), "example changed: update this test");
+    let case = Case::parse(
+        &text.replace("equations = \"navier-stokes\"", "equations = \"stokes\""),
+        &path,
+    )
+    .unwrap();
+    let analysis = try_analyse_corners(
+        &case.domain,
+        &case.conditions,
+        case.model.viscous_form,
+        &AnalysisParams::default(),
+    )
+    .unwrap();
+    let singular: Vec<_> = analysis
+        .reports
+        .iter()
+        .filter(|r| r.classification == Classification::SingularGradient)
+        .collect();
+    assert_eq!(singular.len(), 1, "exactly the step corner is singular");
+    let (mesh, _) = generate(&case.domain, &case.mesh).unwrap();
+    let field = solve(&case, &mesh);
+    let measured = measure_singular_corners(&case.domain, &mesh, &field, &analysis.reports);
+    let fit = measured[0].fit.as_ref().unwrap();
+    assert!((measured[0].predicted - 0.5444837368).abs() < 1e-8);
+    assert!((fit.lambda - 0.5444837368).abs() < 0.05, "fitted {fit:?}");
+}

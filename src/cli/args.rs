@@ -3,7 +3,7 @@
 
 use std::path::PathBuf;
 
-use clap::{Args, Parser, Subcommand};
+use clap::{Args, Parser, Subcommand, ValueEnum};
 
 /// cornerflow: 2D incompressible viscous flow (Stokes, Navier–Stokes) on polygonal domains
 /// with sharp corners — meshing, solving, forces, and corner-singularity diagnostics.
@@ -54,6 +54,17 @@ pub struct RunArgs {
     /// Number of threads for assembly (default: all cores).
     #[arg(long, value_name = "N")]
     pub threads: Option<usize>,
+    /// Sparse direct solver for the saddle-point system: `ldlt` (symmetric, regularized, with
+    /// iterative refinement; fastest) or `lu` (general LU; slower, kept as a fallback).
+    #[arg(long, value_enum, default_value_t = LinearSolver::Ldlt)]
+    pub linear_solver: LinearSolver,
+}
+
+/// Choice of the sparse direct solver.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
+pub enum LinearSolver {
+    Ldlt,
+    Lu,
 }
 
 #[derive(Debug, Args)]
@@ -85,6 +96,11 @@ mod tests {
         let cli = Cli::try_parse_from(["cornerflow", "run"]).unwrap();
         let Command::Run(args) = cli.command else { panic!("expected run") };
         assert!(args.case.is_none());
+        assert_eq!(args.linear_solver, LinearSolver::Ldlt);
+        let cli = Cli::try_parse_from(["cornerflow", "run", "--linear-solver", "lu"]).unwrap();
+        let Command::Run(args) = cli.command else { panic!("expected run") };
+        assert_eq!(args.linear_solver, LinearSolver::Lu);
+        assert!(Cli::try_parse_from(["cornerflow", "run", "--linear-solver", "cg"]).is_err());
     }
 
     #[test]

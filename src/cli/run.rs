@@ -6,7 +6,9 @@ use std::time::Instant;
 
 use anyhow::Context;
 use cornerflow::case::{Case, Equations};
-use cornerflow::corners::{AnalysisParams, try_analyse_corners};
+use cornerflow::corners::{
+    AnalysisParams, MeasuredExponent, measure_singular_corners, try_analyse_corners,
+};
 use cornerflow::fem::FlowField;
 use cornerflow::mesh::Mesh;
 use cornerflow::output::table::{write_csv, write_json};
@@ -14,10 +16,12 @@ use cornerflow::output::vtu::{
     CellField, PointField, VtuOptions, boundary_part_per_node, write_vtu,
 };
 use cornerflow::post::{self, FluidProperties, ReferenceScales, VolumeForceTerms, WallReference};
-use cornerflow::solver::{SolveError, SolveInfo, SolverParams, StokesProblem, solve_stokes};
+use cornerflow::solver::{
+    SolveError, SolveInfo, SolverKind, SolverParams, StokesProblem, solve_stokes,
+};
 use serde_json::{Value, json};
 
-use super::args::RunArgs;
+use super::args::{LinearSolver, RunArgs};
 use super::mesh::{mesh_case, output_dir, print_summary, write_mesh_vtu};
 use super::progress::Stage;
 use super::{BadInput, load_case};
@@ -49,14 +53,23 @@ pub fn run(args: &RunArgs) -> anyhow::Result<()> {
         &AnalysisParams::default(),
     )
     .with_context(|| format!("corner analysis of {}", case.source.display()))?;
+    let clock = Instant::now();
     let (mesh, stats) = mesh_case(&case, &args.meshing)?;
+    let mesh_time = clock.elapsed();
     print_summary(&case, &stats);
     if case.output.mesh {
         write_mesh_vtu(&out.join("mesh.vtu"), &mesh, case.output.compress)?;
     }
-    let (field, info) = solve_steady_stokes(&case, &mesh)?;
+    let clock = Instant::now();
+    let (field, info) = solve_steady_stokes(&case, &mesh, args.linear_solver)?;
+    let solve_time = clock.elapsed();
+    let clock = Instant::now();
+    let measured = measure_singular_corners(&case.domain, &mesh, &field, &corners.reports);
     let forces = report_forces(&case, &mesh, &field, &out)?;
+    let post_time = clock.elapsed();
+    let clock = Instant::now();
     write_solution(&case, &mesh, &field, &out)?;
+    let output_time = clock.elapsed();
     let summary = json!({
         "case": case.name,
         "source": case.source.display().to_string(),
@@ -67,10 +80,18 @@ pub fn run(args: &RunArgs) -> anyhow::Result<()> {
         "forces": forces,
         "probes": probes_json(&case, &mesh, &field)?,
         "corners": serde_json::to_value(&corners.reports)?,
+        "measured_exponents": measured_json(&measured),
+        "stage_timings_s": {
+            "mesh": mesh_time.as_secs_f64(),
+            "solve": solve_time.as_secs_f64(),
+            "post_processing": post_time.as_secs_f64(),
+            "output": output_time.as_secs_f64(),
+        },
         "wall_time_s": started.elapsed().as_secs_f64(),
     });
     write_json(&out.join("summary.json"), &summary)?;
     println!("\ncorners of the domain:\n{}", corners.table());
+    print_measured(&measured);
     eprintln!("results in {}", out.display());
     Ok(())
 }
@@ -85,8 +106,17 @@ fn configure_threads(threads: Option<usize>) -> anyhow::Result<()> {
     Ok(())
 }
 
-fn solve_steady_stokes(case: &Case, mesh: &Mesh) -> anyhow::Result<(FlowField, SolveInfo)> {
-    let stage = Stage::start("solve", "steady Stokes, Taylor–Hood P2–P1, sparse LDLᵀ");
+fn solve_steady_stokes(
+    case: &Case,
+    mesh: &Mesh,
+    linear_solver: LinearSolver,
+) -> anyhow::Result<(FlowField, SolveInfo)> {
+    let kind = match linear_solver {
+        LinearSolver::Ldlt => SolverKind::Ldlt,
+        LinearSolver::Lu => SolverKind::Lu,
+    };
+    let name = if kind == SolverKind::Lu { "LU" } else { "LDLᵀ" };
+    let stage = Stage::start("solve", &format!("steady Stokes, Taylor–Hood P2–P1, sparse {name}"));
     let problem = StokesProblem {
         viscosity: case.fluid.kinematic_viscosity,
         conditions: &case.conditions,
@@ -95,7 +125,8 @@ fn solve_steady_stokes(case: &Case, mesh: &Mesh) -> anyhow::Result<(FlowField, S
         time: 0.0,
     };
     let (field, info) =
-        solve_stokes(mesh, &problem, &SolverParams::default()).map_err(|e| solve_error(case, e))?;
+        solve_stokes(mesh, &problem, &SolverParams { kind, ..SolverParams::default() })
+            .map_err(|e| solve_error(case, e))?;
     stage.done(&format!(
         "{} unknowns, relative residual {:.1e} after {} refinement step(s){}",
         info.n_velocity_dofs + info.n_pressure_dofs,
@@ -274,4 +305,50 @@ fn solver_json(info: &SolveInfo) -> Value {
             "solve": t.solve.as_secs_f64(),
         },
     })
+}
+
+fn measured_json(measured: &[MeasuredExponent]) -> Value {
+    let rows: Vec<Value> = measured
+        .iter()
+        .map(|m| match &m.fit {
+            Ok(fit) => {
+                json!({ "corner": m.corner, "location": m.location, "predicted": m.predicted,
+                               "fitted": fit.lambda, "band": [fit.band.0, fit.band.1],
+                               "radii": [fit.r_range.0, fit.r_range.1],
+                               "closest_predicted": m.closest_predicted })
+            }
+            Err(why) => {
+                json!({ "corner": m.corner, "location": m.location, "predicted": m.predicted,
+                                "fitted": null, "reason": why })
+            }
+        })
+        .collect();
+    Value::Array(rows)
+}
+
+/// Prints predicted against fitted exponents of the singular corners.
+fn print_measured(measured: &[MeasuredExponent]) {
+    if measured.is_empty() {
+        return;
+    }
+    println!("local exponents at singular corners (fit of the gradient energy E(r) ~ r^(2λ)):");
+    for m in measured {
+        let [x, y] = m.location;
+        match &m.fit {
+            Ok(f) => {
+                println!(
+                    "  ({x:.4}, {y:.4}): predicted λ₁ = {:.4}, fitted {:.4} [{:.4}, {:.4}] over r in [{:.3e}, {:.3e}]",
+                    m.predicted, f.lambda, f.band.0, f.band.1, f.r_range.0, f.r_range.1
+                );
+                if let Some(next) = m.closest_predicted.filter(|c| (c - m.predicted).abs() > 1e-6) {
+                    println!(
+                        "    the fit is closest to the next predicted exponent {next:.4}: the leading mode is weak here"
+                    );
+                }
+            }
+            Err(why) => {
+                println!("  ({x:.4}, {y:.4}): predicted λ₁ = {:.4}, no fit: {why}", m.predicted)
+            }
+        }
+    }
 }

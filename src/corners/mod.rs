@@ -14,6 +14,7 @@
 
 pub mod analysis;
 pub mod fit;
+pub mod measure;
 pub mod roots;
 pub mod wedge;
 
@@ -26,4 +27,5 @@ pub use fit::{
     ExponentFit, FitError, FitRangeParams, fit_local_exponent, fit_radius_range, geometric_radii,
     gradient_energy_in_discs, try_gradient_energy_in_discs,
 };
+pub use measure::{MeasuredExponent, local_mesh_size, measure_singular_corners};
 pub use wedge::{Exponent, ExponentSearch, Family, SideKind, WedgeSpectrum, wedge_exponents};
