@@ -150,14 +150,7 @@ mod tests {
 
     /// Nodal values of a vector field at the six P2 nodes, in local velocity order.
     fn interpolate(tri: &AffineTriangle, u: impl Fn(f64, f64) -> [f64; 2]) -> [f64; 12] {
-        let bary = [
-            [1.0, 0.0, 0.0],
-            [0.0, 1.0, 0.0],
-            [0.0, 0.0, 1.0],
-            [0.5, 0.5, 0.0],
-            [0.0, 0.5, 0.5],
-            [0.5, 0.0, 0.5],
-        ];
+        let bary = crate::fem::shape::P2_NODE_BARYCENTRIC;
         let mut out = [0.0; 12];
         for (k, l) in bary.iter().enumerate() {
             let p = tri.point(*l);

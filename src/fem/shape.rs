@@ -33,6 +33,16 @@ impl AffineTriangle {
     }
 }
 
+/// Barycentric coordinates of the six P2 nodes `[v0, v1, v2, m01, m12, m20]`.
+pub const P2_NODE_BARYCENTRIC: [[f64; 3]; 6] = [
+    [1.0, 0.0, 0.0],
+    [0.0, 1.0, 0.0],
+    [0.0, 0.0, 1.0],
+    [0.5, 0.5, 0.0],
+    [0.0, 0.5, 0.5],
+    [0.5, 0.0, 0.5],
+];
+
 /// Values of the six P2 basis functions at barycentric point `l`.
 pub fn p2_values(l: [f64; 3]) -> [f64; 6] {
     [
@@ -63,14 +73,7 @@ pub fn p1_values(l: [f64; 3]) -> [f64; 3] {
 mod tests {
     use super::*;
 
-    const NODES: [[f64; 3]; 6] = [
-        [1.0, 0.0, 0.0],
-        [0.0, 1.0, 0.0],
-        [0.0, 0.0, 1.0],
-        [0.5, 0.5, 0.0],
-        [0.0, 0.5, 0.5],
-        [0.5, 0.0, 0.5],
-    ];
+    const NODES: [[f64; 3]; 6] = P2_NODE_BARYCENTRIC;
 
     #[test]
     fn p2_basis_is_nodal_and_sums_to_one() {

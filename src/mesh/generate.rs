@@ -157,14 +157,7 @@ fn excess_boundary(domain: &Domain, controls: &MeshControls) -> f64 {
 fn coarse_triangles(domain: &Domain) -> Result<Vec<[Point; 3]>, MeshError> {
     let input = raw_boundary(domain);
     let mut cdt = load(&input)?;
-    let res = cdt.refine(
-        RefinementParameters::<f64>::new()
-            .exclude_outer_faces(true)
-            .keep_constraint_edges()
-            .with_angle_limit(AngleLimit::from_deg(0.0))
-            .with_max_additional_vertices(0),
-    );
-    let excluded: FaceSet = res.excluded_faces.into_iter().collect();
+    let excluded = excluded_faces(&mut cdt);
     Ok(cdt
         .inner_faces()
         .filter(|f| !excluded.contains(&f.fix()))

@@ -18,15 +18,7 @@ use crate::fem::FlowField;
 use crate::fem::quadrature::triangle_rule;
 use crate::mesh::Mesh;
 
-/// Barycentric coordinates of the six P2 nodes `[v0, v1, v2, m01, m12, m20]`.
-const NODE_BARY: [[f64; 3]; 6] = [
-    [1.0, 0.0, 0.0],
-    [0.0, 1.0, 0.0],
-    [0.0, 0.0, 1.0],
-    [0.5, 0.5, 0.0],
-    [0.0, 0.5, 0.5],
-    [0.5, 0.0, 0.5],
-];
+use crate::fem::shape::P2_NODE_BARYCENTRIC as NODE_BARY;
 
 /// The cheap derived fields of one flow field, for the VTK writer (the stream function needs
 /// a linear solve and is computed separately by [`stream_function`](super::stream_function)).
