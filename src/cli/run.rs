@@ -88,6 +88,7 @@ pub fn run(args: &RunArgs) -> anyhow::Result<()> {
             "output": output_time.as_secs_f64(),
         },
         "wall_time_s": started.elapsed().as_secs_f64(),
+        "peak_memory_bytes": peak_memory_bytes(),
     });
     write_json(&out.join("summary.json"), &summary)?;
     println!("\ncorners of the domain:\n{}", corners.table());
@@ -351,4 +352,14 @@ fn print_measured(measured: &[MeasuredExponent]) {
             }
         }
     }
+}
+
+/// Peak resident memory of this process (Linux `VmHWM`), or null where it cannot be read.
+fn peak_memory_bytes() -> Value {
+    let status = std::fs::read_to_string("/proc/self/status").unwrap_or_default();
+    status
+        .lines()
+        .find_map(|l| l.strip_prefix("VmHWM:"))
+        .and_then(|v| v.trim().trim_end_matches("kB").trim().parse::<u64>().ok())
+        .map_or(Value::Null, |kb| json!(kb * 1024))
 }
