@@ -32,6 +32,7 @@
 mod fields;
 mod forces;
 mod probe;
+pub mod series;
 mod streamfunction;
 mod wall;
 
