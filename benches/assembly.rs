@@ -2,6 +2,10 @@
 //! a structured mesh of about 250k triangles; before the criterion runs, one steady Stokes
 //! solve is timed stage by stage (pattern, assembly, symbolic, numeric, solve).
 //!
+//! A third group compares building the sparsity pattern directly (node-to-cell adjacency,
+//! column by column; what `SystemPattern::new` does) with the general COO → CSC route of
+//! nalgebra-sparse (every element pair pushed, duplicates summed).
+//!
 //! Run: `cargo bench --bench assembly`. Set `CORNERFLOW_BENCH_SOLVE_N=<cells per side>` to
 //! change the size of the timed solve (default 160, about 230k unknowns; 0 skips it) and
 //! `CORNERFLOW_BENCH_SOLVE_FORM=symmetric` to time it with the symmetric viscous form (full
@@ -73,6 +77,45 @@ fn bench_assembly(c: &mut Criterion) {
     group.finish();
 }
 
+/// Pattern construction: direct against nalgebra-sparse's COO → CSC with duplicate summation.
+fn bench_pattern(c: &mut Criterion) {
+    use cornerflow::fem::dofs::ComponentDof;
+    let mesh = unit_square(ASSEMBLY_CELLS / 2);
+    let conditions = channel_conditions();
+    let constraints = resolve_boundary(&mesh, &conditions, 0.0).expect("valid conditions");
+    let (dofs, _) = stokes_dof_map(&mesh, &constraints, 1e-8).expect("open channel");
+    let mut group = c.benchmark_group("stokes_pattern");
+    group.sample_size(10);
+    group.bench_function("direct", |b| {
+        b.iter(|| {
+            black_box(SystemPattern::new(&mesh, dofs.clone(), VelocityCoupling::Full).unwrap())
+        })
+    });
+    group.bench_function("nalgebra_sparse_coo", |b| {
+        b.iter(|| {
+            let n = dofs.n_dofs();
+            let mut coo = nalgebra_sparse::CooMatrix::new(n, n);
+            for cell in &mesh.cells {
+                let free: Vec<usize> = dofs
+                    .cell_dofs(cell)
+                    .into_iter()
+                    .filter_map(|d| match d {
+                        ComponentDof::Free { dof, .. } => Some(dof),
+                        ComponentDof::Fixed(_) => None,
+                    })
+                    .collect();
+                for &r in &free {
+                    for &col in &free {
+                        coo.push(r, col, 1.0);
+                    }
+                }
+            }
+            black_box(nalgebra_sparse::CscMatrix::from(&coo))
+        })
+    });
+    group.finish();
+}
+
 /// One steady solve of the channel problem, timings per stage printed once.
 fn report_solve_stages() {
     let n =
@@ -124,5 +167,6 @@ fn main() {
     report_solve_stages();
     let mut criterion = Criterion::default().configure_from_args();
     bench_assembly(&mut criterion);
+    bench_pattern(&mut criterion);
     criterion.final_summary();
 }
