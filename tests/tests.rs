@@ -7,6 +7,7 @@ mod cli;
 mod corners;
 mod forces;
 mod mesh_props;
+mod navier_stokes;
 mod pipeline;
 mod stokes;
 mod vtk_roundtrip;

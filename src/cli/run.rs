@@ -222,15 +222,28 @@ fn write_solution(case: &Case, mesh: &Mesh, field: &FlowField, out: &Path) -> an
         return Ok(());
     }
     let stage = Stage::start("output", "derived fields and solution.vtu");
+    let path = out.join("solution.vtu");
+    write_field_vtu(case, mesh, field, &path)?;
+    stage.done(&format!("wrote {}", path.display()));
+    Ok(())
+}
+
+/// Writes a flow field with its derived fields (speed, vorticity, stream function, pressure
+/// at all six nodes in physical units, per-cell divergence error) to `path`.
+pub fn write_field_vtu(
+    case: &Case,
+    mesh: &Mesh,
+    field: &FlowField,
+    path: &Path,
+) -> anyhow::Result<()> {
     let derived = post::derived_fields(mesh, field)?;
     let psi = post::stream_function(mesh, field)?;
     let density = case.fluid.density;
     let pressure: Vec<f64> = derived.pressure.iter().map(|p| p * density).collect();
     let tags = boundary_part_per_node(mesh);
     let quality = cornerflow::mesh::cell_quality(mesh);
-    let path = out.join("solution.vtu");
     write_vtu(
-        &path,
+        path,
         mesh,
         &[
             PointField::Vector("velocity", &field.velocity),
@@ -246,7 +259,6 @@ fn write_solution(case: &Case, mesh: &Mesh, field: &FlowField, out: &Path) -> an
         ],
         VtuOptions { compress: case.output.compress, boundary_edges: false },
     )?;
-    stage.done(&format!("wrote {}", path.display()));
     Ok(())
 }
 

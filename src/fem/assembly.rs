@@ -181,6 +181,16 @@ impl SystemPattern {
         }
     }
 
+    /// Replaces the prescribed boundary values by those of `constraints` (time-dependent
+    /// data); the pattern and position map are unchanged. Returns false, changing nothing,
+    /// when the constraint layout differs from the one the pattern was built for.
+    pub fn update_fixed_values(
+        &mut self,
+        constraints: &[crate::fem::dofs::NodeConstraint],
+    ) -> bool {
+        self.dofs.update_fixed_values(constraints)
+    }
+
     /// Scatters one local system of `cell` into `out` (see the module docs).
     fn scatter(&self, mesh: &Mesh, cell: usize, local: &LocalSystem, out: &mut AssembledSystem) {
         // Per local unknown: global row (or none), weight (0 when fixed), fixed value (0 when free).
@@ -261,6 +271,50 @@ pub fn assemble_into(
                 batch.par_iter_mut().enumerate().for_each(|(k, local)| kernel(start + k, local));
                 for (k, local) in batch.iter().enumerate() {
                     pattern.scatter(mesh, start + k, local, out);
+                }
+            }
+        }
+    }
+}
+
+/// Assembles a right-hand side only: `kernel(cell, load)` must overwrite `load` with the
+/// local load of `cell`, **already lifted** (the contribution of the cell's eliminated
+/// values subtracted by the kernel itself); free entries are scattered with the weights of
+/// the [`DofMap`]. `buffer` holds the local loads of one parallel batch and is reused
+/// across calls, so a time loop allocates nothing per step.
+///
+/// Both parallelism modes scatter in element order, so they give identical sums.
+pub fn assemble_vector_into(
+    pattern: &SystemPattern,
+    mesh: &Mesh,
+    parallelism: Parallelism,
+    buffer: &mut Vec<[f64; LOCAL_SIZE]>,
+    rhs: &mut Vec<f64>,
+    kernel: impl Fn(usize, &mut [f64; LOCAL_SIZE]) + Sync,
+) {
+    rhs.clear();
+    rhs.resize(pattern.n(), 0.0);
+    let batch_size = match parallelism {
+        Parallelism::Serial => 1,
+        Parallelism::Rayon => BATCH,
+    };
+    buffer.resize(batch_size, [0.0; LOCAL_SIZE]);
+    for start in (0..mesh.cells.len()).step_by(batch_size) {
+        let end = (start + batch_size).min(mesh.cells.len());
+        let batch = &mut buffer[..end - start];
+        match parallelism {
+            Parallelism::Serial => {
+                batch.iter_mut().enumerate().for_each(|(k, l)| kernel(start + k, l))
+            }
+            Parallelism::Rayon => {
+                batch.par_iter_mut().enumerate().for_each(|(k, l)| kernel(start + k, l))
+            }
+        }
+        for (k, load) in batch.iter().enumerate() {
+            let cell = &mesh.cells[start + k];
+            for (i, d) in pattern.dofs.cell_dofs(cell).iter().enumerate() {
+                if let ComponentDof::Free { dof, weight } = *d {
+                    rhs[dof] += weight * load[i];
                 }
             }
         }

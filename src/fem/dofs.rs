@@ -132,6 +132,38 @@ impl DofMap {
         out
     }
 
+    /// Replaces the prescribed values of the fixed velocity components by those of
+    /// `constraints` (time-dependent boundary data on an unchanged layout). Returns false,
+    /// changing nothing, when the layout of `constraints` differs (a node changed between
+    /// free, fixed and slip).
+    pub fn update_fixed_values(&mut self, constraints: &[NodeConstraint]) -> bool {
+        let same_layout = constraints.len() == self.velocity.len()
+            && constraints.iter().zip(&self.velocity).all(|(c, v)| match (c, v[0]) {
+                (NodeConstraint::Fixed(_), ComponentDof::Fixed(_)) => true,
+                (NodeConstraint::Free | NodeConstraint::Slip { .. }, ComponentDof::Free { .. }) => {
+                    true
+                }
+                _ => false,
+            });
+        if !same_layout {
+            return false;
+        }
+        for (c, v) in constraints.iter().zip(&mut self.velocity) {
+            if let NodeConstraint::Fixed(value) = c {
+                *v = [ComponentDof::Fixed(value[0]), ComponentDof::Fixed(value[1])];
+            }
+        }
+        true
+    }
+
+    /// The prescribed velocities of the fixed nodes.
+    pub fn fixed_velocities(&self) -> impl Iterator<Item = [f64; 2]> + '_ {
+        self.velocity.iter().filter_map(|v| match v {
+            [ComponentDof::Fixed(a), ComponentDof::Fixed(b)] => Some([*a, *b]),
+            _ => None,
+        })
+    }
+
     /// True when global unknown `dof` is a pressure unknown.
     pub fn is_pressure(&self, dof: usize) -> bool {
         dof >= self.n_velocity_dofs

@@ -30,6 +30,7 @@ pub struct FlowField {
 }
 
 pub mod assembly;
+pub mod convection;
 pub mod dofs;
 pub mod kernels;
 pub mod norms;

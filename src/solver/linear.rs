@@ -121,6 +121,13 @@ pub struct NumericFactor {
     kind: NumericKind,
 }
 
+impl NumericFactor {
+    /// Empty storage, to be filled by [`SymbolicSystem::refactorize`] (of either kind).
+    pub fn placeholder() -> Self {
+        NumericFactor { kind: NumericKind::Ldlt(Vec::new()) }
+    }
+}
+
 #[derive(Debug)]
 enum NumericKind {
     Ldlt(Vec<f64>),

@@ -25,6 +25,8 @@
 
 pub mod boundary;
 pub mod linear;
+pub mod navier_stokes;
+pub mod unsteady;
 
 use std::time::{Duration, Instant};
 
@@ -42,6 +44,10 @@ pub use boundary::{BoundaryConstraints, BoundaryFlux, boundary_flux, resolve_bou
 pub use linear::{
     LinearParams, NumericFactor, RefinementInfo, Regularization, SolverKind, SymbolicSystem,
 };
+pub use navier_stokes::{
+    NewtonError, NewtonInfo, NewtonIteration, NewtonParams, solve_steady_navier_stokes,
+};
+pub use unsteady::{ImexParams, ImexStepper, StepError, StepInfo, UnsteadyProblem};
 
 /// A steady Stokes problem on a mesh whose part ids index `conditions`.
 #[derive(Clone, Copy, Debug)]
@@ -187,19 +193,9 @@ pub fn solve_stokes(
     problem: &StokesProblem,
     params: &SolverParams,
 ) -> Result<(FlowField, SolveInfo), SolveError> {
-    if !(problem.viscosity > 0.0 && problem.viscosity.is_finite()) {
-        return Err(SolveError::InvalidViscosity { value: problem.viscosity });
-    }
-    if mesh.cells.is_empty() {
-        return Err(SolveError::EmptyMesh);
-    }
     let mut timings = StageTimings::default();
     let start = Instant::now();
-    let constraints = resolve_boundary(mesh, problem.conditions, problem.time)?;
-    let (dofs, flux) = stokes_dof_map(mesh, &constraints, params.flux_tolerance)?;
-    // Full coupling even for the gradient form: measured smaller LDLᵀ factors (see
-    // `VelocityCoupling`).
-    let pattern = SystemPattern::new(mesh, dofs, VelocityCoupling::Full)?;
+    let (pattern, flux) = build_pattern(mesh, problem, params)?;
     timings.pattern = start.elapsed();
 
     let start = Instant::now();
@@ -231,6 +227,30 @@ pub fn solve_stokes(
         boundary_flux: flux,
     };
     Ok((field, info))
+}
+
+/// Validates the problem and builds the dof numbering and sparsity pattern (full velocity
+/// coupling) from the boundary conditions at `problem.time`: the first stage of every solver.
+///
+/// # Errors
+/// [`SolveError::InvalidViscosity`], [`SolveError::EmptyMesh`], the boundary errors of
+/// [`resolve_boundary`], [`SolveError::IncompatibleFlux`] and [`SolveError::Pattern`].
+pub fn build_pattern(
+    mesh: &Mesh,
+    problem: &StokesProblem,
+    params: &SolverParams,
+) -> Result<(SystemPattern, BoundaryFlux), SolveError> {
+    if !(problem.viscosity > 0.0 && problem.viscosity.is_finite()) {
+        return Err(SolveError::InvalidViscosity { value: problem.viscosity });
+    }
+    if mesh.cells.is_empty() {
+        return Err(SolveError::EmptyMesh);
+    }
+    let constraints = resolve_boundary(mesh, problem.conditions, problem.time)?;
+    let (dofs, flux) = stokes_dof_map(mesh, &constraints, params.flux_tolerance)?;
+    // Full coupling even for the gradient form: measured smaller LDLᵀ factors (see
+    // `VelocityCoupling`); Newton linearisations of convection need it anyway.
+    Ok((SystemPattern::new(mesh, dofs, VelocityCoupling::Full)?, flux))
 }
 
 /// The fewest velocity couplings the viscous form needs: like components only for the

@@ -1,0 +1,344 @@
+//! Steady Navier–Stokes solver: Newton's method on the Taylor–Hood system, started from the
+//! Stokes solution, with optional Picard (Oseen) steps and continuation in the viscosity.
+//!
+//! Takes a [`Mesh`] and a [`StokesProblem`] (its viscosity is the target one); returns the
+//! discrete [`FlowField`] and a [`NewtonInfo`] with one [`NewtonIteration`] per nonlinear
+//! step (residual, update, kind) and the stage timings.
+//!
+//! Equations (kinematic form): `(u·∇)u − ν Δu + ∇p = f`, `div u = 0`. Each step assembles
+//! the linearised system around the current iterate `w` (see [`crate::fem::convection`]):
+//! Newton `[K + n'(w)] u = f + N(w)`, Picard `[K + n(w; ·)] u = f`, both solved for the new
+//! iterate `u` directly, with Dirichlet values eliminated as in the Stokes solver. The matrix
+//! is nonsymmetric, so the linear solves use LU; the symbolic analysis is done once for the
+//! pattern and the numeric factor storage is reused by every step.
+//!
+//! **Stopping test.** The nonlinear residual of the iterate `w` on the free unknowns is
+//! `R(w) = J(w) w − b(w)` from the system assembled at `w` (both linearisations give the true
+//! residual `K w + N(w) − f` there, since `n'(w) w = 2 N(w)`). The iteration stops when
+//! `‖R(w)‖₂ ≤ residual_tolerance · ‖b₀‖₂`, with `b₀` the right-hand side of the Stokes
+//! system (body force plus lifted boundary data, the natural scale of the problem). With
+//! continuation, intermediate viscosities stop at `continuation_tolerance` instead.
+//! Non-convergence within `max_iterations` returns [`NewtonError::NotConverged`] carrying the
+//! residual history and the last iterate, so the caller can write it (marked unconverged).
+//!
+//! # References
+//! J. Donea, A. Huerta, *Finite Element Methods for Flow Problems*, Wiley 2003, ch. 6 (Newton
+//! and Picard linearisations; from memory). H.C. Elman, D.J. Silvester, A.J. Wathen, *Finite
+//! Elements and Fast Iterative Solvers*, 2nd ed., OUP 2014, ch. 8 (the same, and the relative
+//! residual stopping test; from memory).
+
+use std::time::{Duration, Instant};
+
+use crate::fem::FlowField;
+use crate::fem::assembly::{AssembledSystem, Parallelism, SystemPattern, assemble_into};
+use crate::fem::convection::{Linearisation, add_linearised_convection};
+use crate::fem::kernels::stokes_local_system;
+use crate::fem::shape::AffineTriangle;
+use crate::mesh::Mesh;
+
+use super::linear::{LinearParams, NumericFactor, SolverKind, SymbolicSystem};
+use super::{SolveError, SolverParams, StokesProblem, build_pattern, expand_field};
+
+/// Settings of the nonlinear iteration. Defaults: no Picard steps, at most 30 iterations,
+/// residual tolerance `1e-10`, no continuation (intermediate tolerance `1e-4`).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct NewtonParams {
+    /// Picard (Oseen) steps before switching to Newton (robust far from the solution).
+    pub picard_steps: usize,
+    /// Most nonlinear iterations per viscosity (Picard steps included).
+    pub max_iterations: usize,
+    /// Relative residual `‖R‖ / ‖b₀‖` that ends the iteration at the target viscosity.
+    pub residual_tolerance: f64,
+    /// Number of intermediate viscosities before the target one (0: none). They are
+    /// `ν · c^(1 − j/m)`, `j = 0 … m − 1`, with `c = continuation_factor`: the Reynolds
+    /// number grows geometrically from `Re/c` to `Re`.
+    pub continuation_steps: usize,
+    /// Ratio of the first continuation viscosity to the target one (> 1).
+    pub continuation_factor: f64,
+    /// Relative residual that ends an intermediate continuation stage.
+    pub continuation_tolerance: f64,
+}
+
+impl Default for NewtonParams {
+    fn default() -> Self {
+        NewtonParams {
+            picard_steps: 0,
+            max_iterations: 30,
+            residual_tolerance: 1e-10,
+            continuation_steps: 0,
+            continuation_factor: 10.0,
+            continuation_tolerance: 1e-4,
+        }
+    }
+}
+
+/// One nonlinear step.
+#[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+pub struct NewtonIteration {
+    /// Kinematic viscosity of this step (differs from the target during continuation).
+    pub viscosity: f64,
+    /// `true` for a Newton step, `false` for a Picard step.
+    pub newton: bool,
+    /// `‖R(w)‖₂ / ‖b₀‖₂` of the iterate the step started from.
+    pub residual: f64,
+    /// `‖u − w‖₂ / ‖u‖₂` of the step's update (free unknowns).
+    pub update: f64,
+}
+
+/// Wall-clock time of the stages, summed over the iterations.
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+pub struct NewtonTimings {
+    pub pattern: Duration,
+    pub assembly: Duration,
+    pub symbolic: Duration,
+    pub numeric: Duration,
+    pub solve: Duration,
+}
+
+/// What a steady Navier–Stokes solve did.
+#[derive(Clone, Debug, PartialEq)]
+pub struct NewtonInfo {
+    pub n_velocity_dofs: usize,
+    pub n_pressure_dofs: usize,
+    pub nnz: usize,
+    /// Every nonlinear step in order (continuation stages included).
+    pub iterations: Vec<NewtonIteration>,
+    /// Relative residual `‖R‖ / ‖b₀‖` of the returned field.
+    pub final_residual: f64,
+    pub timings: NewtonTimings,
+    pub pressure_fixed: bool,
+}
+
+/// Why a steady Navier–Stokes solve failed.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[non_exhaustive]
+pub enum NewtonError {
+    #[error(transparent)]
+    Solve(#[from] SolveError),
+    #[error(
+        "Newton iteration did not converge in {iterations} steps at viscosity {viscosity:e}: last relative residuals {}",
+        last_residuals(&info.iterations)
+    )]
+    NotConverged {
+        iterations: usize,
+        viscosity: f64,
+        /// The iterations so far and the last iterate (not a solution).
+        info: Box<NewtonInfo>,
+        last: Box<FlowField>,
+    },
+}
+
+fn last_residuals(iterations: &[NewtonIteration]) -> String {
+    let start = iterations.len().saturating_sub(4);
+    iterations[start..].iter().map(|i| format!("{:.2e}", i.residual)).collect::<Vec<_>>().join(", ")
+}
+
+/// The sequence of viscosities: continuation stages, then the target.
+fn viscosity_schedule(target: f64, params: &NewtonParams) -> Vec<f64> {
+    let m = params.continuation_steps;
+    let c = params.continuation_factor.max(1.0);
+    let mut out: Vec<f64> = (0..m).map(|j| target * c.powf(1.0 - j as f64 / m as f64)).collect();
+    out.push(target);
+    out
+}
+
+/// Solves the steady Navier–Stokes problem on `mesh`.
+///
+/// # Errors
+/// [`NewtonError::Solve`] for every failure of the Stokes stages (boundary data, pattern,
+/// factorisation, linear residual); [`NewtonError::NotConverged`] when the residual target is
+/// not met within `newton.max_iterations` at some viscosity.
+///
+/// # References
+/// See the module docs.
+pub fn solve_steady_navier_stokes(
+    mesh: &Mesh,
+    problem: &StokesProblem,
+    params: &SolverParams,
+    newton: &NewtonParams,
+) -> Result<(FlowField, NewtonInfo), NewtonError> {
+    let mut timings = NewtonTimings::default();
+    let start = Instant::now();
+    let (pattern, _flux) = build_pattern(mesh, problem, params)?;
+    timings.pattern = start.elapsed();
+    let linear = LinearParams { kind: SolverKind::Lu, ..params.linear() };
+    let start = Instant::now();
+    let symbolic = SymbolicSystem::analyse(&pattern, SolverKind::Lu)?;
+    timings.symbolic = start.elapsed();
+
+    let mut solver = NewtonSolver {
+        mesh,
+        problem,
+        pattern: &pattern,
+        symbolic: &symbolic,
+        linear,
+        parallelism: params.parallelism,
+        system: AssembledSystem { values: Vec::new(), rhs: Vec::new(), dropped_entries: 0 },
+        factor: None,
+        timings,
+    };
+    let mut x = solver.linear_step(problem.viscosity, None, Linearisation::Picard)?;
+    let scale = norm(&solver.system.rhs).max(f64::MIN_POSITIVE);
+    let mut info = NewtonInfo {
+        n_velocity_dofs: pattern.dofs().n_velocity_dofs(),
+        n_pressure_dofs: pattern.dofs().n_pressure_dofs(),
+        nnz: pattern.nnz(),
+        iterations: Vec::new(),
+        final_residual: f64::NAN,
+        timings: NewtonTimings::default(),
+        pressure_fixed: pattern.dofs().pinned_pressure().is_some(),
+    };
+    let schedule = viscosity_schedule(problem.viscosity, newton);
+    for (stage, &viscosity) in schedule.iter().enumerate() {
+        let last_stage = stage + 1 == schedule.len();
+        let tolerance =
+            if last_stage { newton.residual_tolerance } else { newton.continuation_tolerance };
+        let mut converged = false;
+        for k in 0..=newton.max_iterations {
+            let kind =
+                if k < newton.picard_steps { Linearisation::Picard } else { Linearisation::Newton };
+            let w = expand_field(mesh, pattern.dofs(), &x);
+            solver.assemble(viscosity, Some(&w), kind)?;
+            let residual = solver.residual_norm(&x) / scale;
+            info.final_residual = residual;
+            if residual <= tolerance {
+                converged = true;
+                break;
+            }
+            if k == newton.max_iterations || !residual.is_finite() {
+                break;
+            }
+            let x_new = solver.factor_and_solve()?;
+            let update = distance(&x_new, &x) / norm(&x_new).max(f64::MIN_POSITIVE);
+            info.iterations.push(NewtonIteration {
+                viscosity,
+                newton: kind == Linearisation::Newton,
+                residual,
+                update,
+            });
+            x = x_new;
+        }
+        if !converged {
+            info.timings = solver.timings;
+            let iterations = info.iterations.len();
+            return Err(NewtonError::NotConverged {
+                iterations,
+                viscosity,
+                last: Box::new(expand_field(mesh, pattern.dofs(), &x)),
+                info: Box::new(info),
+            });
+        }
+    }
+    info.timings = solver.timings;
+    Ok((expand_field(mesh, pattern.dofs(), &x), info))
+}
+
+/// The state shared by the linear steps of one nonlinear solve.
+struct NewtonSolver<'a> {
+    mesh: &'a Mesh,
+    problem: &'a StokesProblem<'a>,
+    pattern: &'a SystemPattern,
+    symbolic: &'a SymbolicSystem,
+    linear: LinearParams,
+    parallelism: Parallelism,
+    system: AssembledSystem,
+    factor: Option<NumericFactor>,
+    timings: NewtonTimings,
+}
+
+impl NewtonSolver<'_> {
+    /// Assembles the system linearised around `w` (the Stokes system when `w` is `None`).
+    fn assemble(
+        &mut self,
+        viscosity: f64,
+        w: Option<&FlowField>,
+        kind: Linearisation,
+    ) -> Result<(), SolveError> {
+        let start = Instant::now();
+        let (mesh, problem) = (self.mesh, self.problem);
+        let time = problem.time;
+        let force_closure = problem
+            .body_force
+            .map(|[fx, fy]| move |x: f64, y: f64| [fx.eval(x, y, time), fy.eval(x, y, time)]);
+        let force: Option<&(dyn Fn(f64, f64) -> [f64; 2] + Sync)> =
+            force_closure.as_ref().map(|f| f as &(dyn Fn(f64, f64) -> [f64; 2] + Sync));
+        assemble_into(self.pattern, mesh, self.parallelism, &mut self.system, |cell, local| {
+            let tri = AffineTriangle::new(mesh.cell_vertices(cell));
+            stokes_local_system(&tri, viscosity, problem.viscous_form, force, local);
+            if let Some(w) = w {
+                let nodes = &mesh.cells[cell];
+                let nodal: [[f64; 2]; 6] = std::array::from_fn(|k| w.velocity[nodes[k]]);
+                add_linearised_convection(&tri, &nodal, kind, local);
+            }
+        });
+        self.timings.assembly += start.elapsed();
+        if self.system.dropped_entries > 0 {
+            return Err(SolveError::PatternMismatch { dropped: self.system.dropped_entries });
+        }
+        if self.system.rhs.iter().any(|v| !v.is_finite()) {
+            return Err(SolveError::NonFiniteBodyForce);
+        }
+        Ok(())
+    }
+
+    /// Assembles around `w` and solves for the next iterate.
+    fn linear_step(
+        &mut self,
+        viscosity: f64,
+        w: Option<&FlowField>,
+        kind: Linearisation,
+    ) -> Result<Vec<f64>, SolveError> {
+        self.assemble(viscosity, w, kind)?;
+        self.factor_and_solve()
+    }
+
+    /// Factorises the assembled matrix (reusing the factor storage) and solves.
+    fn factor_and_solve(&mut self) -> Result<Vec<f64>, SolveError> {
+        let start = Instant::now();
+        let values = &self.system.values;
+        match &mut self.factor {
+            Some(f) => self.symbolic.refactorize(self.pattern, values, &self.linear, f)?,
+            None => {
+                self.factor = Some(self.symbolic.factorize(self.pattern, values, &self.linear)?)
+            }
+        }
+        self.timings.numeric += start.elapsed();
+        let start = Instant::now();
+        let factor = self.factor.as_ref().expect("factorised above");
+        let (x, _) =
+            self.symbolic.solve(self.pattern, values, factor, &self.system.rhs, &self.linear)?;
+        self.timings.solve += start.elapsed();
+        Ok(x)
+    }
+
+    /// `‖J x − b‖₂` of the assembled system.
+    fn residual_norm(&self, x: &[f64]) -> f64 {
+        let mut ax = vec![0.0; x.len()];
+        self.pattern.multiply(&self.system.values, x, &mut ax);
+        ax.iter().zip(&self.system.rhs).map(|(a, b)| (a - b) * (a - b)).sum::<f64>().sqrt()
+    }
+}
+
+fn norm(v: &[f64]) -> f64 {
+    v.iter().map(|x| x * x).sum::<f64>().sqrt()
+}
+
+fn distance(a: &[f64], b: &[f64]) -> f64 {
+    a.iter().zip(b).map(|(x, y)| (x - y) * (x - y)).sum::<f64>().sqrt()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn continuation_schedule_ends_at_the_target_viscosity() {
+        let params = NewtonParams { continuation_steps: 2, ..NewtonParams::default() };
+        let s = viscosity_schedule(1e-3, &params);
+        assert_eq!(s.len(), 3);
+        assert!((s[0] - 1e-2).abs() < 1e-15);
+        assert!((s[1] - 1e-3 * 10f64.sqrt()).abs() < 1e-15);
+        assert_eq!(s[2], 1e-3);
+        assert_eq!(viscosity_schedule(0.5, &NewtonParams::default()), vec![0.5]);
+    }
+}

@@ -1,0 +1,544 @@
+//! Unsteady Navier–Stokes (or Stokes) flow by an implicit–explicit BDF2 scheme with a
+//! factorisation that is computed once.
+//!
+//! Takes a [`Mesh`], an [`UnsteadyProblem`] and [`ImexParams`]; [`ImexStepper::new`] starts
+//! from the steady Stokes solution for the boundary data at `t = 0` (divergence-free and
+//! consistent with the data; the fluid at rest when the data vanish), and each
+//! [`ImexStepper::step`] advances one time step and returns a [`StepInfo`]. The time loop, its
+//! output and its progress display belong to the caller.
+//!
+//! **Scheme.** With `u* = 2uⁿ − uⁿ⁻¹` (second-order extrapolation),
+//!
+//! ```text
+//! (3uⁿ⁺¹ − 4uⁿ + uⁿ⁻¹)/(2Δt) − ν Δuⁿ⁺¹ + ∇pⁿ⁺¹ = fⁿ⁺¹ − (u*·∇)u*,   div uⁿ⁺¹ = 0,
+//! ```
+//!
+//! viscous and pressure terms implicit, convection explicit. The first step uses backward
+//! Euler with `u* = u⁰`. The step matrix `[[3/(2Δt) M + A, Bᵀ], [B, 0]]` is symmetric and does
+//! not change between steps, so it is factorised once by the regularised `LDLᵀ` (once more
+//! for the first, backward-Euler step) and every step costs one vector assembly (history,
+//! explicit convection, body force, lifting of the boundary data at `tⁿ⁺¹`) and a pair of
+//! triangular solves with iterative refinement. Time-dependent boundary data change only
+//! the eliminated values, never the pattern.
+//!
+//! **Stability monitor.** The scheme is conditionally stable (explicit convection): each step
+//! reports the Courant number `max_T max_nodes |u| Δt / h_T` (`h_T` the longest edge), and
+//! fails with [`StepError::BlowUp`] when the solution is not finite or its largest nodal
+//! speed exceeds `blow_up_factor · max(speed_scale, largest boundary speed)`. The stepper
+//! then still holds the last good state.
+//!
+//! # References
+//! U.M. Ascher, S.J. Ruuth, B.T.R. Wetton, *Implicit-explicit methods for time-dependent
+//! partial differential equations*, SIAM J. Numer. Anal. 32 (1995) 797–823 (the SBDF2
+//! scheme; from memory). V. John, *Finite Element Methods for Incompressible Flow Problems*,
+//! Springer 2016, ch. 7 (time stepping for Navier–Stokes; from memory).
+
+use std::time::{Duration, Instant};
+
+use crate::case::{BoundaryCondition, ScalarExpr};
+use crate::fem::assembly::{AssembledSystem, SystemPattern, assemble_into, assemble_vector_into};
+use crate::fem::convection::{add_explicit_step_load, add_mass_block};
+use crate::fem::dofs::ComponentDof;
+use crate::fem::kernels::{LOCAL_SIZE, LocalSystem, stokes_local_system};
+use crate::fem::shape::AffineTriangle;
+use crate::fem::{FlowField, ViscousForm};
+use crate::mesh::Mesh;
+
+use super::linear::{LinearParams, NumericFactor, SolverKind, SymbolicSystem};
+use super::{
+    SolveError, SolverParams, StokesProblem, build_pattern, expand_field, resolve_boundary,
+};
+
+/// An unsteady problem: the data of a Stokes problem, evaluated at each step's time, plus
+/// whether the convective term is present.
+#[derive(Clone, Copy, Debug)]
+pub struct UnsteadyProblem<'a> {
+    /// Kinematic viscosity ν > 0.
+    pub viscosity: f64,
+    /// Boundary condition of every part (expressions may use `t`).
+    pub conditions: &'a [BoundaryCondition],
+    /// Body force per unit mass in `x, y, t`, or none.
+    pub body_force: Option<&'a [ScalarExpr; 2]>,
+    pub viscous_form: ViscousForm,
+    /// `true` for Navier–Stokes, `false` for unsteady Stokes.
+    pub convection: bool,
+}
+
+/// Settings of the time stepper. Defaults: rayon assembly, the linear settings of
+/// [`SolverParams::default`] (regularised `LDLᵀ`), blow-up factor 100, speed scale 1.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct ImexParams {
+    /// Time step Δt > 0.
+    pub dt: f64,
+    /// Assembly and linear-solve settings (`kind` must be `Ldlt` or `Lu`; both work, the step
+    /// matrix is symmetric).
+    pub solver: SolverParams,
+    /// A step fails when its largest nodal speed exceeds this factor times
+    /// `max(speed_scale, largest boundary speed)`. Common practice, no source: a bounded flow
+    /// does not accelerate to a hundred times its driving speed.
+    pub blow_up_factor: f64,
+    /// Characteristic speed of the flow (the case's reference velocity).
+    pub speed_scale: f64,
+}
+
+impl ImexParams {
+    /// Default settings for time step `dt`.
+    pub fn new(dt: f64) -> Self {
+        ImexParams { dt, solver: SolverParams::default(), blow_up_factor: 100.0, speed_scale: 1.0 }
+    }
+}
+
+/// What one step did.
+#[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+pub struct StepInfo {
+    /// Index of the step (1 for the first).
+    pub step: usize,
+    /// Time reached, `tⁿ⁺¹`.
+    pub time: f64,
+    /// Order of the BDF formula used (1 for the first step, then 2).
+    pub order: usize,
+    /// Courant number `max_T max |u| Δt / h_T` of the new state.
+    pub courant: f64,
+    /// Largest nodal speed of the new state.
+    pub max_speed: f64,
+    /// Relative residual of the linear solve.
+    pub relative_residual: f64,
+    pub refinement_steps: usize,
+}
+
+/// Wall-clock time spent in the stages, summed over the steps so far.
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+pub struct StepTimings {
+    /// Pattern, symbolic analysis, matrix assembly and factorisations (setup).
+    pub setup: Duration,
+    /// Boundary data at the new time and the right-hand-side assembly (explicit terms).
+    pub rhs: Duration,
+    /// Triangular solves with refinement.
+    pub solve: Duration,
+}
+
+/// Why a time step failed.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[non_exhaustive]
+pub enum StepError {
+    #[error(transparent)]
+    Solve(#[from] SolveError),
+    #[error(
+        "initial field has {velocity} velocities and {pressure} pressures; the mesh has {nodes} nodes and {vertices} vertices"
+    )]
+    InitialField { velocity: usize, pressure: usize, nodes: usize, vertices: usize },
+    #[error("time step must be positive and finite, got {dt}")]
+    InvalidTimeStep { dt: f64 },
+    #[error(
+        "the boundary conditions at t = {time} fix other nodes than at t = 0 (the node layout must not change in time)"
+    )]
+    LayoutChanged { time: f64 },
+    #[error(
+        "the solution blew up at step {step} (t = {time}): largest speed {max_speed:e} above the limit {limit:e} (Courant number {courant:.3}); reduce the time step"
+    )]
+    BlowUp { step: usize, time: f64, max_speed: f64, limit: f64, courant: f64 },
+}
+
+/// The state of an IMEX BDF2 time integration.
+pub struct ImexStepper<'a> {
+    mesh: &'a Mesh,
+    problem: UnsteadyProblem<'a>,
+    params: ImexParams,
+    pattern: SystemPattern,
+    symbolic: SymbolicSystem,
+    linear: LinearParams,
+    factor: NumericFactor,
+    matrix: AssembledSystem,
+    /// Order of the formula `matrix` and `factor` hold.
+    factored_order: usize,
+    cell_has_fixed: Vec<bool>,
+    cell_diameter: Vec<f64>,
+    step: usize,
+    time: f64,
+    current: FlowField,
+    previous: Option<FlowField>,
+    /// `a₀ uⁿ − b₁ uⁿ⁻¹ − b₂ uⁿ⁻²` of the last step.
+    derivative: Vec<[f64; 2]>,
+    rhs: Vec<f64>,
+    buffer: Vec<[f64; LOCAL_SIZE]>,
+    timings: StepTimings,
+}
+
+/// Coefficients `(a₀, b₁, b₂)` of `∂_t u ≈ a₀ uⁿ⁺¹ − b₁ uⁿ − b₂ uⁿ⁻¹` for BDF of `order`.
+fn bdf_coefficients(order: usize, dt: f64) -> (f64, f64, f64) {
+    match order {
+        1 => (1.0 / dt, 1.0 / dt, 0.0),
+        _ => (1.5 / dt, 2.0 / dt, -0.5 / dt),
+    }
+}
+
+impl<'a> ImexStepper<'a> {
+    /// Sets up the stepper at `t = 0` from the steady Stokes solution of the data at `t = 0`
+    /// and factorises the first step's matrix.
+    ///
+    /// # Errors
+    /// [`StepError::InvalidTimeStep`]; [`StepError::Solve`] for invalid data, a failed
+    /// factorisation or a missed residual target.
+    pub fn new(
+        mesh: &'a Mesh,
+        problem: UnsteadyProblem<'a>,
+        params: ImexParams,
+    ) -> Result<Self, StepError> {
+        Self::start(mesh, problem, params, None)
+    }
+
+    /// Like [`ImexStepper::new`], but starts from `initial` (velocity per mesh node, pressure
+    /// per vertex) instead of the steady Stokes solution; `initial` should satisfy the
+    /// boundary data at `t = 0`.
+    ///
+    /// # Errors
+    /// As [`ImexStepper::new`], plus [`StepError::InitialField`] when `initial` does not
+    /// match the mesh.
+    pub fn with_initial_field(
+        mesh: &'a Mesh,
+        problem: UnsteadyProblem<'a>,
+        params: ImexParams,
+        initial: FlowField,
+    ) -> Result<Self, StepError> {
+        if initial.velocity.len() != mesh.nodes.len() || initial.pressure.len() != mesh.n_vertices {
+            return Err(StepError::InitialField {
+                velocity: initial.velocity.len(),
+                pressure: initial.pressure.len(),
+                nodes: mesh.nodes.len(),
+                vertices: mesh.n_vertices,
+            });
+        }
+        Self::start(mesh, problem, params, Some(initial))
+    }
+
+    fn start(
+        mesh: &'a Mesh,
+        problem: UnsteadyProblem<'a>,
+        params: ImexParams,
+        initial: Option<FlowField>,
+    ) -> Result<Self, StepError> {
+        if !(params.dt > 0.0 && params.dt.is_finite()) {
+            return Err(StepError::InvalidTimeStep { dt: params.dt });
+        }
+        let start = Instant::now();
+        let stokes = StokesProblem {
+            viscosity: problem.viscosity,
+            conditions: problem.conditions,
+            body_force: problem.body_force,
+            viscous_form: problem.viscous_form,
+            time: 0.0,
+        };
+        let (pattern, _) = build_pattern(mesh, &stokes, &params.solver)?;
+        let linear = LinearParams {
+            kind: if params.solver.kind == SolverKind::Lu {
+                SolverKind::Lu
+            } else {
+                SolverKind::Ldlt
+            },
+            ..params.solver.linear()
+        };
+        let symbolic = SymbolicSystem::analyse(&pattern, linear.kind)?;
+        let matrix = super::assemble_stokes(&pattern, mesh, &stokes, params.solver.parallelism)?;
+        let (current, mut factor) = match initial {
+            Some(field) => (field, NumericFactor::placeholder()),
+            None => {
+                let factor = symbolic.factorize(&pattern, &matrix.values, &linear)?;
+                let rhs = &matrix.rhs;
+                let (x, _) = symbolic.solve(&pattern, &matrix.values, &factor, rhs, &linear)?;
+                (expand_field(mesh, pattern.dofs(), &x), factor)
+            }
+        };
+        let cell_has_fixed = mesh
+            .cells
+            .iter()
+            .map(|c| {
+                pattern.dofs().cell_dofs(c).iter().any(|d| matches!(d, ComponentDof::Fixed(_)))
+            })
+            .collect();
+        let cell_diameter = (0..mesh.n_cells()).map(|c| longest_edge(mesh, c)).collect();
+        let mut stepper = ImexStepper {
+            mesh,
+            problem,
+            params,
+            pattern,
+            symbolic,
+            linear,
+            factor: NumericFactor::placeholder(),
+            matrix,
+            factored_order: 0,
+            cell_has_fixed,
+            cell_diameter,
+            step: 0,
+            time: 0.0,
+            derivative: vec![[0.0; 2]; current.velocity.len()],
+            current,
+            previous: None,
+            rhs: Vec::new(),
+            buffer: Vec::new(),
+            timings: StepTimings::default(),
+        };
+        stepper.factor_step_matrix(1, &mut factor)?;
+        stepper.factor = factor;
+        stepper.timings.setup = start.elapsed();
+        Ok(stepper)
+    }
+
+    /// The current state `uⁿ`, `pⁿ` (kinematic pressure).
+    pub fn field(&self) -> &FlowField {
+        &self.current
+    }
+
+    /// The current time `tⁿ`.
+    pub fn time(&self) -> f64 {
+        self.time
+    }
+
+    /// Steps taken so far.
+    pub fn steps(&self) -> usize {
+        self.step
+    }
+
+    /// Number of unknowns of the linear system.
+    pub fn n_unknowns(&self) -> usize {
+        self.pattern.n()
+    }
+
+    /// Time spent per stage so far.
+    pub fn timings(&self) -> StepTimings {
+        self.timings
+    }
+
+    /// The BDF approximation of `∂_t u` that the last step used, per mesh node (zero before
+    /// the first step): the time derivative for the volume form of forces.
+    pub fn time_derivative(&self) -> &[[f64; 2]] {
+        &self.derivative
+    }
+
+    /// Advances one step, to `tⁿ⁺¹ = tⁿ + Δt`.
+    ///
+    /// # Errors
+    /// [`StepError::LayoutChanged`] when the boundary conditions at the new time fix other
+    /// nodes; [`StepError::Solve`] for non-finite data or a failed solve;
+    /// [`StepError::BlowUp`] when the new state is not finite or too fast (the stepper then
+    /// keeps the previous state).
+    pub fn step(&mut self) -> Result<StepInfo, StepError> {
+        let order = if self.step == 0 { 1 } else { 2 };
+        if order != self.factored_order {
+            let start = Instant::now();
+            let mut factor = std::mem::replace(&mut self.factor, NumericFactor::placeholder());
+            let result = self.factor_step_matrix(order, &mut factor);
+            self.factor = factor;
+            result?;
+            self.timings.setup += start.elapsed();
+        }
+        let time = self.time + self.params.dt;
+        let start = Instant::now();
+        let constraints = resolve_boundary(self.mesh, self.problem.conditions, time)?;
+        if !self.pattern.update_fixed_values(&constraints.nodes) {
+            return Err(StepError::LayoutChanged { time });
+        }
+        self.assemble_rhs(order, time)?;
+        self.timings.rhs += start.elapsed();
+        let start = Instant::now();
+        let (x, refinement) = self.symbolic.solve(
+            &self.pattern,
+            &self.matrix.values,
+            &self.factor,
+            &self.rhs,
+            &self.linear,
+        )?;
+        self.timings.solve += start.elapsed();
+        let next = expand_field(self.mesh, self.pattern.dofs(), &x);
+        let (courant, max_speed) = self.courant(&next);
+        let info = StepInfo {
+            step: self.step + 1,
+            time,
+            order,
+            courant,
+            max_speed,
+            relative_residual: refinement.relative_residual,
+            refinement_steps: refinement.steps,
+        };
+        self.check_growth(&next, &info)?;
+        self.update_derivative(order, &next);
+        self.previous = Some(std::mem::replace(&mut self.current, next));
+        self.step += 1;
+        self.time = time;
+        Ok(info)
+    }
+
+    /// Assembles and factorises the step matrix of BDF `order` into `factor`.
+    fn factor_step_matrix(
+        &mut self,
+        order: usize,
+        factor: &mut NumericFactor,
+    ) -> Result<(), SolveError> {
+        let (a0, _, _) = bdf_coefficients(order, self.params.dt);
+        let (mesh, problem) = (self.mesh, self.problem);
+        assemble_into(
+            &self.pattern,
+            mesh,
+            self.params.solver.parallelism,
+            &mut self.matrix,
+            |cell, local| step_local_matrix(mesh, problem, a0, cell, local),
+        );
+        if self.matrix.dropped_entries > 0 {
+            return Err(SolveError::PatternMismatch { dropped: self.matrix.dropped_entries });
+        }
+        self.symbolic.refactorize(&self.pattern, &self.matrix.values, &self.linear, factor)?;
+        self.factored_order = order;
+        Ok(())
+    }
+
+    /// The right-hand side of the step to `time`: history, explicit convection, body force,
+    /// minus the step matrix applied to the boundary values at `time`.
+    fn assemble_rhs(&mut self, order: usize, time: f64) -> Result<(), SolveError> {
+        let (a0, b1, b2) = bdf_coefficients(order, self.params.dt);
+        let current = &self.current.velocity;
+        let previous = self.previous.as_ref().map_or(current, |p| &p.velocity);
+        let (e1, e2) = if order == 1 { (1.0, 0.0) } else { (2.0, -1.0) };
+        let convection = self.problem.convection;
+        let (mesh, problem, pattern) = (self.mesh, self.problem, &self.pattern);
+        let has_fixed = &self.cell_has_fixed;
+        let force_closure = problem
+            .body_force
+            .map(|[fx, fy]| move |x: f64, y: f64| [fx.eval(x, y, time), fy.eval(x, y, time)]);
+        let force: Option<&(dyn Fn(f64, f64) -> [f64; 2] + Sync)> =
+            force_closure.as_ref().map(|f| f as &(dyn Fn(f64, f64) -> [f64; 2] + Sync));
+        let combine = |nodes: &[usize; 6], s1: f64, s2: f64| -> [[f64; 2]; 6] {
+            std::array::from_fn(|k| {
+                let (u, v) = (current[nodes[k]], previous[nodes[k]]);
+                [s1 * u[0] + s2 * v[0], s1 * u[1] + s2 * v[1]]
+            })
+        };
+        assemble_vector_into(
+            pattern,
+            mesh,
+            self.params.solver.parallelism,
+            &mut self.buffer,
+            &mut self.rhs,
+            |cell, load| {
+                *load = [0.0; LOCAL_SIZE];
+                let nodes = &mesh.cells[cell];
+                let tri = AffineTriangle::new(mesh.cell_vertices(cell));
+                let history = combine(nodes, b1, b2);
+                let extrapolated = if convection { combine(nodes, e1, e2) } else { [[0.0; 2]; 6] };
+                add_explicit_step_load(&tri, &history, &extrapolated, force, load);
+                if has_fixed[cell] {
+                    lift_fixed_values(mesh, problem, pattern, a0, cell, load);
+                }
+            },
+        );
+        if self.rhs.iter().any(|v| !v.is_finite()) {
+            return Err(SolveError::NonFiniteBodyForce);
+        }
+        Ok(())
+    }
+
+    /// Stores the BDF derivative `a₀ uⁿ⁺¹ − b₁ uⁿ − b₂ uⁿ⁻¹` of the accepted state `next`.
+    fn update_derivative(&mut self, order: usize, next: &FlowField) {
+        let (a0, b1, b2) = bdf_coefficients(order, self.params.dt);
+        let current = &self.current.velocity;
+        let previous = self.previous.as_ref().map_or(current, |p| &p.velocity);
+        for (n, d) in self.derivative.iter_mut().enumerate() {
+            for c in 0..2 {
+                d[c] = a0 * next.velocity[n][c] - b1 * current[n][c] - b2 * previous[n][c];
+            }
+        }
+    }
+
+    /// Courant number and largest nodal speed of `field`.
+    fn courant(&self, field: &FlowField) -> (f64, f64) {
+        let mut courant: f64 = 0.0;
+        let mut max_speed: f64 = 0.0;
+        for (cell, nodes) in self.mesh.cells.iter().enumerate() {
+            let speed = nodes
+                .iter()
+                .map(|&n| field.velocity[n][0].hypot(field.velocity[n][1]))
+                .fold(0.0, f64::max);
+            max_speed = max_speed.max(speed);
+            courant = courant.max(speed * self.params.dt / self.cell_diameter[cell]);
+        }
+        if field.velocity.iter().any(|u| !(u[0].is_finite() && u[1].is_finite())) {
+            return (f64::INFINITY, f64::INFINITY);
+        }
+        (courant, max_speed)
+    }
+
+    /// Fails when the new state is not finite or faster than the blow-up limit.
+    fn check_growth(&self, next: &FlowField, info: &StepInfo) -> Result<(), StepError> {
+        let boundary_speed =
+            self.pattern.dofs().fixed_velocities().map(|v| v[0].hypot(v[1])).fold(0.0, f64::max);
+        let limit = self.params.blow_up_factor * self.params.speed_scale.max(boundary_speed);
+        let finite = info.max_speed.is_finite() && next.pressure.iter().all(|p| p.is_finite());
+        if !finite || info.max_speed > limit {
+            return Err(StepError::BlowUp {
+                step: info.step,
+                time: info.time,
+                max_speed: info.max_speed,
+                limit,
+                courant: info.courant,
+            });
+        }
+        Ok(())
+    }
+}
+
+/// The local step matrix `[[a₀ M + A, Bᵀ], [B, 0]]` of `cell` (no load).
+fn step_local_matrix(
+    mesh: &Mesh,
+    problem: UnsteadyProblem,
+    a0: f64,
+    cell: usize,
+    local: &mut LocalSystem,
+) {
+    let tri = AffineTriangle::new(mesh.cell_vertices(cell));
+    stokes_local_system(&tri, problem.viscosity, problem.viscous_form, None, local);
+    add_mass_block(&tri, a0, local);
+}
+
+/// Subtracts the local step matrix applied to the cell's eliminated values from `load`.
+fn lift_fixed_values(
+    mesh: &Mesh,
+    problem: UnsteadyProblem,
+    pattern: &SystemPattern,
+    a0: f64,
+    cell: usize,
+    load: &mut [f64; LOCAL_SIZE],
+) {
+    let mut local = LocalSystem::default();
+    step_local_matrix(mesh, problem, a0, cell, &mut local);
+    let dofs = pattern.dofs().cell_dofs(&mesh.cells[cell]);
+    for (j, d) in dofs.iter().enumerate() {
+        if let ComponentDof::Fixed(value) = *d {
+            if value != 0.0 {
+                for (i, l) in load.iter_mut().enumerate() {
+                    *l -= local.matrix[i][j] * value;
+                }
+            }
+        }
+    }
+}
+
+fn longest_edge(mesh: &Mesh, cell: usize) -> f64 {
+    let [a, b, c] = mesh.cell_vertices(cell);
+    let d = |p: [f64; 2], q: [f64; 2]| (p[0] - q[0]).hypot(p[1] - q[1]);
+    d(a, b).max(d(b, c)).max(d(c, a))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn bdf_coefficients_are_consistent() {
+        // A consistent difference formula is exact for constants (a₀ = b₁ + b₂) and for
+        // u(t) = t with t₁ = Δt, t₀ = 0, t₋₁ = −Δt: a₀ t₁ − b₁ t₀ − b₂ t₋₁ = 1.
+        for order in [1, 2] {
+            let dt = 0.1;
+            let (a0, b1, b2) = bdf_coefficients(order, dt);
+            assert!((a0 - b1 - b2).abs() < 1e-12);
+            assert!((a0 * dt - b2 * (-dt) - 1.0).abs() < 1e-12);
+        }
+    }
+}
