@@ -20,3 +20,4 @@ pub mod mesh;
 pub mod output;
 pub mod post;
 pub mod solver;
+pub mod validation;

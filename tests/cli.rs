@@ -152,3 +152,114 @@ fn corners_command_reports_the_step_corner_exponent() {
         serde_json::from_str(&std::fs::read_to_string(dir.path().join("c.json")).unwrap()).unwrap();
     assert!(json.as_array().unwrap().len() >= 6);
 }
+
+/// A small time-dependent case: a 16-gon in a short channel with an inflow that grows in time.
+const UNSTEADY_CASE: &str = r#"
+name = "small-unsteady"
+[fluid]
+density = 1.0
+kinematic_viscosity = 0.01
+reference_velocity = 1.0
+reference_length = 0.1
+[domain.outer]
+rectangle = [0.0, 0.0, 1.0, 0.4]
+sides = { bottom = "wall", right = "outlet", top = "wall", left = "inlet" }
+[[domain.bodies]]
+name = "body"
+polygon = { center = [0.3, 0.2], radius = 0.05, sides = 16 }
+[conditions.inlet]
+kind = "velocity"
+ux = "4 * sin(t) * y * (0.4 - y) / 0.16"
+uy = 0
+[conditions.wall]
+kind = "no-slip"
+[conditions.body]
+kind = "no-slip"
+[conditions.outlet]
+kind = "outflow"
+[mesh]
+size = 0.05
+[model]
+equations = "navier-stokes"
+[model.time]
+dt = 0.01
+t_end = 0.05
+write_every = 2
+[report]
+pressure_difference = [[0.2, 0.2], [0.4, 0.2]]
+[output]
+directory = "out"
+"#;
+
+#[test]
+fn unsteady_run_writes_a_pvd_series_a_force_history_and_statistics() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("case.toml"), UNSTEADY_CASE).unwrap();
+    let out = run_cli(dir.path(), &["run", "case.toml"]);
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let root = dir.path().join("out");
+    // Steps 0 (initial), 2, 4 and the final step 5.
+    let pvd = std::fs::read_to_string(root.join("solution.pvd")).unwrap();
+    for step in ["000000", "000002", "000004", "000005"] {
+        let name = format!("fields/solution-{step}.vtu");
+        assert!(pvd.contains(&name), "{name} missing from the pvd: {pvd}");
+        let mesh = read_vtu_with_meshio(&root.join(&name));
+        let n_points = mesh["points"].as_array().unwrap().len();
+        assert_eq!(mesh["point_data"]["velocity"].as_array().unwrap().len(), n_points);
+    }
+    let csv = std::fs::read_to_string(root.join("forces.csv")).unwrap();
+    let lines: Vec<&str> = csv.lines().collect();
+    assert!(lines[0].starts_with("t,courant,cd_volume_0,cl_volume_0,cd_surface_0,cl_surface_0"));
+    assert!(lines[0].ends_with("pressure_difference"));
+    assert_eq!(lines.len(), 1 + 6, "header plus states 0..=5: {csv}");
+    let last: Vec<f64> = lines[6].split(',').map(|v| v.parse().unwrap()).collect();
+    assert!((last[0] - 0.05).abs() < 1e-12);
+    // The inflow grows from zero, so the drag at t = 0.05 is positive and finite.
+    assert!(last[2] > 0.0 && last[2].is_finite());
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(root.join("summary.json")).unwrap()).unwrap();
+    assert_eq!(summary["model"], "unsteady-navier-stokes");
+    assert_eq!(summary["time_stepping"]["steps"], 5);
+    let drag = &summary["statistics"]["forces"][0]["drag_volume"]["whole_run"];
+    assert!(drag["max"].as_f64().unwrap() >= drag["mean"].as_f64().unwrap());
+    assert!(summary["statistics"]["pressure_difference"]["final"].as_f64().is_some());
+}
+
+#[test]
+fn steady_navier_stokes_run_reports_its_newton_iterations() {
+    let case = repo_root().join("examples/cylinder-benchmark.toml");
+    let dir = tempfile::tempdir().unwrap();
+    let out = run_cli(dir.path(), &["run", case.to_str().unwrap(), "-o", "out"]);
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let summary: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(dir.path().join("out/summary.json")).unwrap(),
+    )
+    .unwrap();
+    assert_eq!(summary["model"], "navier-stokes");
+    let iterations = summary["solver"]["iterations"].as_array().unwrap();
+    assert!((2..=8).contains(&iterations.len()), "{iterations:?}");
+    assert!(summary["solver"]["final_relative_residual"].as_f64().unwrap() <= 1e-10);
+    // 2D-1 benchmark at the example's resolution: drag within 0.2 % of 5.57953523384
+    // (Schäfer & Turek 1996; reference value of Nabh 1998 / John & Matthies 2001).
+    let cd = summary["forces"][0]["volume"]["coefficients"]["drag"].as_f64().unwrap();
+    assert!((cd - 5.57953523384).abs() <= 0.002 * 5.57953523384, "c_D = {cd}");
+}
+
+#[test]
+fn unconverged_newton_exits_with_code_1_and_keeps_the_last_iterate() {
+    let text = std::fs::read_to_string(repo_root().join("examples/cylinder-benchmark.toml"))
+        .unwrap()
+        .replace(
+            "viscous_form = \"gradient\"    # the benchmark's do-nothing outflow",
+            "viscous_form = \"gradient\"\n[model.nonlinear]\nmax_iterations = 1",
+        )
+        .replace("size = 0.02", "size = 0.05");
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("case.toml"), &text).unwrap();
+    let out = run_cli(dir.path(), &["run", "case.toml", "-o", "out"]);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(1), "{stderr}");
+    assert!(stderr.contains("did not converge") && stderr.contains("solution-unconverged.vtu"));
+    let mesh = read_vtu_with_meshio(&dir.path().join("out/solution-unconverged.vtu"));
+    assert!(mesh["point_data"]["velocity"].as_array().is_some());
+}

@@ -10,4 +10,5 @@ mod mesh_props;
 mod navier_stokes;
 mod pipeline;
 mod stokes;
+mod validation;
 mod vtk_roundtrip;

@@ -11,8 +11,8 @@ use std::path::{Path, PathBuf};
 use super::error::{CaseError, Site};
 use super::raw::*;
 use super::{
-    Body, BoundaryCondition, Case, Equations, ExactSolution, Fluid, Model, Output,
-    PressureDifference, Probe, ScalarExpr, TimeStepping,
+    Body, BoundaryCondition, Case, Equations, ExactSolution, Fluid, Model, NonlinearControls,
+    Output, PressureDifference, Probe, ScalarExpr, TimeStepping,
 };
 use crate::fem::ViscousForm;
 use crate::geometry::{Domain, PartId, Point};
@@ -358,7 +358,46 @@ impl<'a> Context<'a> {
             RawViscousForm::Symmetric => ViscousForm::Symmetric,
         };
         let time = raw.time.map(|t| self.time(t.into_inner())).transpose()?;
-        Ok(Model { equations, viscous_form, time })
+        let nonlinear = match raw.nonlinear {
+            Some(n) => self.nonlinear(n.into_inner())?,
+            None => NonlinearControls::default(),
+        };
+        Ok(Model { equations, viscous_form, time, nonlinear })
+    }
+
+    fn nonlinear(&self, raw: RawNonlinear) -> Result<NonlinearControls, CaseError> {
+        let mut out = NonlinearControls::default();
+        if let Some(n) = &raw.picard_steps {
+            out.picard_steps = self.non_negative_count("model.nonlinear.picard_steps", n)?;
+        }
+        if let Some(n) = &raw.max_iterations {
+            out.max_iterations = self.at_least_one("model.nonlinear.max_iterations", n)?;
+        }
+        if let Some(v) = &raw.tolerance {
+            out.tolerance = self.positive("model.nonlinear.tolerance", v)?;
+        }
+        if let Some(n) = &raw.continuation_steps {
+            out.continuation_steps =
+                self.non_negative_count("model.nonlinear.continuation_steps", n)?;
+        }
+        if let Some(v) = &raw.continuation_factor {
+            let key = "model.nonlinear.continuation_factor";
+            let factor = self.positive(key, v)?;
+            if factor <= 1.0 {
+                let message = format!("continuation factor {factor} must be greater than 1");
+                return Err(CaseError::Schema { at: self.site(key, v.span()), message });
+            }
+            out.continuation_factor = factor;
+        }
+        Ok(out)
+    }
+
+    fn non_negative_count(&self, key: &str, n: &Sp<i64>) -> Result<usize, CaseError> {
+        usize::try_from(*n.get_ref()).map_err(|_| CaseError::Count {
+            at: self.site(key, n.span()),
+            count: *n.get_ref(),
+            expected: "it must be at least 0",
+        })
     }
 
     fn time(&self, t: RawTime) -> Result<TimeStepping, CaseError> {

@@ -99,6 +99,36 @@ pub struct Model {
     pub viscous_form: ViscousForm,
     /// `None` for a steady problem.
     pub time: Option<TimeStepping>,
+    /// Controls of the steady nonlinear (Newton) iteration.
+    pub nonlinear: NonlinearControls,
+}
+
+/// Controls of the steady Navier–Stokes iteration (`[model.nonlinear]`); see
+/// `solver::NewtonParams` for their meaning.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct NonlinearControls {
+    /// Picard steps before Newton (default 0).
+    pub picard_steps: usize,
+    /// Most iterations per viscosity (default 30).
+    pub max_iterations: usize,
+    /// Relative residual target (default 1e-10).
+    pub tolerance: f64,
+    /// Intermediate viscosities before the target (default 0).
+    pub continuation_steps: usize,
+    /// First continuation viscosity over the target one (default 10, must exceed 1).
+    pub continuation_factor: f64,
+}
+
+impl Default for NonlinearControls {
+    fn default() -> Self {
+        NonlinearControls {
+            picard_steps: 0,
+            max_iterations: 30,
+            tolerance: 1e-10,
+            continuation_steps: 0,
+            continuation_factor: 10.0,
+        }
+    }
 }
 
 /// Time-stepping controls of an unsteady run.

@@ -175,6 +175,17 @@ pub(super) struct RawModel {
     #[serde(default)]
     pub viscous_form: RawViscousForm,
     pub time: Option<Sp<RawTime>>,
+    pub nonlinear: Option<Sp<RawNonlinear>>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(super) struct RawNonlinear {
+    pub picard_steps: Option<Sp<i64>>,
+    pub max_iterations: Option<Sp<i64>>,
+    pub tolerance: Option<Sp<f64>>,
+    pub continuation_steps: Option<Sp<i64>>,
+    pub continuation_factor: Option<Sp<f64>>,
 }
 
 #[derive(Deserialize)]

@@ -22,6 +22,23 @@ pub enum Command {
     Run(RunArgs),
     /// Analyse the corners of a case's domain: angles, singular exponents, regularity.
     Corners(CornersArgs),
+    /// Run built-in validation cases and compare with published reference values.
+    Validate(ValidateArgs),
+}
+
+#[derive(Debug, Args)]
+pub struct ValidateArgs {
+    /// Cases to run: `all` (default) or names among kovasznay, cylinder-steady, cavity-100,
+    /// cavity-1000, cylinder-inflow, cylinder-periodic.
+    #[arg(value_name = "NAME", default_values_t = vec!["all".to_string()])]
+    pub names: Vec<String>,
+    /// Coarse meshes and relaxed tolerances (the subset CI runs); skips the time-dependent
+    /// cases.
+    #[arg(long)]
+    pub quick: bool,
+    /// Also write the table as JSON to this file.
+    #[arg(long, value_name = "FILE")]
+    pub json: Option<PathBuf>,
 }
 
 /// Options shared by the commands that mesh a case.
@@ -101,6 +118,20 @@ mod tests {
         let Command::Run(args) = cli.command else { panic!("expected run") };
         assert_eq!(args.linear_solver, LinearSolver::Lu);
         assert!(Cli::try_parse_from(["cornerflow", "run", "--linear-solver", "cg"]).is_err());
+    }
+
+    #[test]
+    fn validate_defaults_to_all_and_takes_names_and_quick() {
+        let cli = Cli::try_parse_from(["cornerflow", "validate"]).unwrap();
+        let Command::Validate(args) = cli.command else { panic!("expected validate") };
+        assert_eq!(args.names, vec!["all".to_string()]);
+        assert!(!args.quick);
+        let cli =
+            Cli::try_parse_from(["cornerflow", "validate", "kovasznay", "cavity-100", "--quick"])
+                .unwrap();
+        let Command::Validate(args) = cli.command else { panic!("expected validate") };
+        assert_eq!(args.names, vec!["kovasznay".to_string(), "cavity-100".to_string()]);
+        assert!(args.quick);
     }
 
     #[test]

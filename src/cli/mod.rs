@@ -6,6 +6,8 @@ mod corners;
 mod mesh;
 mod progress;
 mod run;
+mod unsteady;
+mod validate;
 
 use std::path::Path;
 
@@ -30,6 +32,7 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<()> {
         Command::Mesh(args) => mesh::run(args),
         Command::Run(args) => run::run(args),
         Command::Corners(args) => corners::run(args),
+        Command::Validate(args) => validate::run(args),
     }
 }
 

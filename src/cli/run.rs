@@ -1,5 +1,7 @@
-//! `cornerflow run [CASE]`: mesh, solve, post-process and write everything into the output
-//! folder — `mesh.vtu`, `solution.vtu`, `wall-<part>.csv` per force part, `summary.json`.
+//! `cornerflow run [CASE]`: mesh, solve (steady Stokes, steady Navier–Stokes by Newton, or
+//! a time-dependent run, see [`super::unsteady`]), post-process and write everything into the
+//! output folder — `mesh.vtu`, `solution.vtu`, `wall-<part>.csv` per force part,
+//! `summary.json`.
 
 use std::path::Path;
 use std::time::Instant;
@@ -17,13 +19,15 @@ use cornerflow::output::vtu::{
 };
 use cornerflow::post::{self, FluidProperties, ReferenceScales, VolumeForceTerms, WallReference};
 use cornerflow::solver::{
-    SolveError, SolveInfo, SolverKind, SolverParams, StokesProblem, solve_stokes,
+    NewtonError, NewtonInfo, NewtonParams, SolveError, SolveInfo, SolverKind, SolverParams,
+    StokesProblem, solve_steady_navier_stokes, solve_stokes,
 };
 use serde_json::{Value, json};
 
 use super::args::{LinearSolver, RunArgs};
 use super::mesh::{mesh_case, output_dir, print_summary, write_mesh_vtu};
 use super::progress::Stage;
+use super::unsteady::{UnsteadySetup, run_unsteady};
 use super::{BadInput, load_case};
 
 /// Runs `cornerflow run`.
@@ -38,12 +42,6 @@ pub fn run(args: &RunArgs) -> anyhow::Result<()> {
             Case::default_case()
         }
     };
-    if case.model.equations == Equations::NavierStokes {
-        return Err(anyhow::Error::new(BadInput(format!(
-            "{}: `model.equations`: Navier–Stokes is not available in this version yet; use \"stokes\"",
-            case.source.display()
-        ))));
-    }
     let started = Instant::now();
     let out = output_dir(&case, &args.meshing);
     let corners = try_analyse_corners(
@@ -60,12 +58,24 @@ pub fn run(args: &RunArgs) -> anyhow::Result<()> {
     if case.output.mesh {
         write_mesh_vtu(&out.join("mesh.vtu"), &mesh, case.output.compress)?;
     }
+    if case.model.time.is_some() {
+        let setup = UnsteadySetup { args, out: &out, stats: &stats, corners: &corners, started };
+        return run_unsteady(&case, &mesh, &setup);
+    }
     let clock = Instant::now();
-    let (field, info) = solve_steady_stokes(&case, &mesh, args.linear_solver)?;
+    let (field, solver) = match case.model.equations {
+        Equations::Stokes => {
+            let (field, info) = solve_steady_stokes(&case, &mesh, args.linear_solver)?;
+            (field, solver_json(&info))
+        }
+        Equations::NavierStokes => solve_steady_navier_stokes_stage(&case, &mesh, &out, args)?,
+    };
     let solve_time = clock.elapsed();
     let clock = Instant::now();
     let measured = measure_singular_corners(&case.domain, &mesh, &field, &corners.reports);
-    let forces = report_forces(&case, &mesh, &field, &out)?;
+    let convecting =
+        (case.model.equations == Equations::NavierStokes).then_some(&field.velocity[..]);
+    let forces = report_forces(&case, &mesh, &field, convecting, &out)?;
     let post_time = clock.elapsed();
     let clock = Instant::now();
     write_solution(&case, &mesh, &field, &out)?;
@@ -73,10 +83,10 @@ pub fn run(args: &RunArgs) -> anyhow::Result<()> {
     let summary = json!({
         "case": case.name,
         "source": case.source.display().to_string(),
-        "model": "stokes",
+        "model": model_name(&case),
         "reynolds_number": case.fluid.reynolds_number(),
         "mesh": mesh_json(&stats),
-        "solver": solver_json(&info),
+        "solver": solver,
         "forces": forces,
         "probes": probes_json(&case, &mesh, &field)?,
         "corners": serde_json::to_value(&corners.reports)?,
@@ -97,6 +107,117 @@ pub fn run(args: &RunArgs) -> anyhow::Result<()> {
     Ok(())
 }
 
+/// The model's name in summaries: `stokes`, `navier-stokes`, with `unsteady-` when timed.
+pub fn model_name(case: &Case) -> String {
+    let equations = match case.model.equations {
+        Equations::Stokes => "stokes",
+        Equations::NavierStokes => "navier-stokes",
+    };
+    if case.model.time.is_some() { format!("unsteady-{equations}") } else { equations.into() }
+}
+
+/// The Newton settings of a case.
+pub fn newton_params(case: &Case) -> NewtonParams {
+    let n = &case.model.nonlinear;
+    NewtonParams {
+        picard_steps: n.picard_steps,
+        max_iterations: n.max_iterations,
+        residual_tolerance: n.tolerance,
+        continuation_steps: n.continuation_steps,
+        continuation_factor: n.continuation_factor,
+        ..NewtonParams::default()
+    }
+}
+
+/// Solves the steady Navier–Stokes problem by Newton's method. When the iteration does not
+/// converge, the last iterate is written as `solution-unconverged.vtu` before the error.
+fn solve_steady_navier_stokes_stage(
+    case: &Case,
+    mesh: &Mesh,
+    out: &Path,
+    args: &RunArgs,
+) -> anyhow::Result<(FlowField, Value)> {
+    let stage = Stage::start(
+        "solve",
+        &format!(
+            "steady Navier–Stokes (Re = {:.4}), Newton's method on Taylor–Hood P2–P1, sparse LU",
+            case.fluid.reynolds_number()
+        ),
+    );
+    let problem = stokes_problem(case);
+    let params = SolverParams { kind: solver_kind(args.linear_solver), ..SolverParams::default() };
+    match solve_steady_navier_stokes(mesh, &problem, &params, &newton_params(case)) {
+        Ok((field, info)) => {
+            for (k, it) in info.iterations.iter().enumerate() {
+                eprintln!(
+                    "[solve]   step {k:>2} {}: residual {:.3e}, update {:.3e}, ν = {:.4e}",
+                    if it.newton { "Newton" } else { "Picard" },
+                    it.residual,
+                    it.update,
+                    it.viscosity
+                );
+            }
+            stage.done(&format!(
+                "{} unknowns, converged in {} step(s), relative residual {:.2e}",
+                info.n_velocity_dofs + info.n_pressure_dofs,
+                info.iterations.len(),
+                info.final_residual
+            ));
+            Ok((field, newton_json(&info)))
+        }
+        Err(NewtonError::NotConverged { iterations, viscosity, info, last }) => {
+            let path = out.join("solution-unconverged.vtu");
+            write_field_vtu(case, mesh, &last, &path)?;
+            let err = NewtonError::NotConverged { iterations, viscosity, info, last };
+            Err(anyhow::Error::new(err).context(format!(
+                "solving {} failed; the last iterate (not a solution) is in {}",
+                case.source.display(),
+                path.display()
+            )))
+        }
+        Err(NewtonError::Solve(e)) => Err(solve_error(case, e)),
+        Err(e) => Err(anyhow::Error::new(e)),
+    }
+}
+
+fn newton_json(info: &NewtonInfo) -> Value {
+    let t = &info.timings;
+    json!({
+        "method": "newton",
+        "velocity_dofs": info.n_velocity_dofs,
+        "pressure_dofs": info.n_pressure_dofs,
+        "nonzeros": info.nnz,
+        "iterations": info.iterations,
+        "final_relative_residual": info.final_residual,
+        "pressure_fixed_to_zero_mean": info.pressure_fixed,
+        "timings_s": {
+            "pattern": t.pattern.as_secs_f64(),
+            "assembly": t.assembly.as_secs_f64(),
+            "symbolic": t.symbolic.as_secs_f64(),
+            "numeric": t.numeric.as_secs_f64(),
+            "solve": t.solve.as_secs_f64(),
+        },
+    })
+}
+
+/// The steady problem of a case at `t = 0`.
+pub fn stokes_problem(case: &Case) -> StokesProblem<'_> {
+    StokesProblem {
+        viscosity: case.fluid.kinematic_viscosity,
+        conditions: &case.conditions,
+        body_force: case.body_force.as_ref(),
+        viscous_form: case.model.viscous_form,
+        time: 0.0,
+    }
+}
+
+pub fn solver_kind(choice: LinearSolver) -> SolverKind {
+    match choice {
+        LinearSolver::Ldlt => SolverKind::Ldlt,
+        LinearSolver::Lu => SolverKind::Lu,
+    }
+}
+
 fn configure_threads(threads: Option<usize>) -> anyhow::Result<()> {
     if let Some(n) = threads {
         if n == 0 {
@@ -112,19 +233,10 @@ fn solve_steady_stokes(
     mesh: &Mesh,
     linear_solver: LinearSolver,
 ) -> anyhow::Result<(FlowField, SolveInfo)> {
-    let kind = match linear_solver {
-        LinearSolver::Ldlt => SolverKind::Ldlt,
-        LinearSolver::Lu => SolverKind::Lu,
-    };
+    let kind = solver_kind(linear_solver);
     let name = if kind == SolverKind::Lu { "LU" } else { "LDLᵀ" };
     let stage = Stage::start("solve", &format!("steady Stokes, Taylor–Hood P2–P1, sparse {name}"));
-    let problem = StokesProblem {
-        viscosity: case.fluid.kinematic_viscosity,
-        conditions: &case.conditions,
-        body_force: case.body_force.as_ref(),
-        viscous_form: case.model.viscous_form,
-        time: 0.0,
-    };
+    let problem = stokes_problem(case);
     let (field, info) =
         solve_stokes(mesh, &problem, &SolverParams { kind, ..SolverParams::default() })
             .map_err(|e| solve_error(case, e))?;
@@ -139,7 +251,7 @@ fn solve_steady_stokes(
 }
 
 /// Classifies solver errors: those caused by the case's boundary data exit with code 2.
-fn solve_error(case: &Case, err: SolveError) -> anyhow::Error {
+pub fn solve_error(case: &Case, err: SolveError) -> anyhow::Error {
     let file = case.source.display();
     match err {
         e @ (SolveError::InvalidViscosity { .. }
@@ -153,7 +265,7 @@ fn solve_error(case: &Case, err: SolveError) -> anyhow::Error {
     }
 }
 
-fn fluid(case: &Case) -> FluidProperties {
+pub fn fluid(case: &Case) -> FluidProperties {
     FluidProperties {
         density: case.fluid.density,
         viscosity: case.fluid.kinematic_viscosity,
@@ -163,20 +275,23 @@ fn fluid(case: &Case) -> FluidProperties {
 
 /// Forces on every reported part by both formulas, with coefficients; writes the wall
 /// distribution of each part as CSV.
-fn report_forces(case: &Case, mesh: &Mesh, field: &FlowField, out: &Path) -> anyhow::Result<Value> {
+fn report_forces(
+    case: &Case,
+    mesh: &Mesh,
+    field: &FlowField,
+    convecting: Option<&[[f64; 2]]>,
+    out: &Path,
+) -> anyhow::Result<Value> {
     let stage = Stage::start("forces", "surface traction and weak-residual forces");
     let fluid = fluid(case);
-    let scales = ReferenceScales {
-        density: case.fluid.density,
-        velocity: case.fluid.reference_velocity,
-        length: case.fluid.reference_length,
-    };
+    let scales = reference_scales(case);
     let body_force = case
         .body_force
         .as_ref()
         .map(|[fx, fy]| move |p: [f64; 2]| [fx.eval(p[0], p[1], 0.0), fy.eval(p[0], p[1], 0.0)]);
     let terms = VolumeForceTerms {
         body_force: body_force.as_ref().map(|f| f as &(dyn Fn([f64; 2]) -> [f64; 2] + Sync)),
+        convecting_velocity: convecting,
         ..VolumeForceTerms::default()
     };
     let mut parts = Vec::new();
@@ -215,6 +330,15 @@ fn report_forces(case: &Case, mesh: &Mesh, field: &FlowField, out: &Path) -> any
     }
     stage.done(&format!("{} part(s)", parts.len()));
     Ok(Value::Array(parts))
+}
+
+/// The coefficient scales of a case.
+pub fn reference_scales(case: &Case) -> ReferenceScales {
+    ReferenceScales {
+        density: case.fluid.density,
+        velocity: case.fluid.reference_velocity,
+        length: case.fluid.reference_length,
+    }
 }
 
 fn write_solution(case: &Case, mesh: &Mesh, field: &FlowField, out: &Path) -> anyhow::Result<()> {
@@ -262,7 +386,7 @@ pub fn write_field_vtu(
     Ok(())
 }
 
-fn probes_json(case: &Case, mesh: &Mesh, field: &FlowField) -> anyhow::Result<Value> {
+pub fn probes_json(case: &Case, mesh: &Mesh, field: &FlowField) -> anyhow::Result<Value> {
     if case.probes.is_empty() && case.pressure_difference.is_none() {
         return Ok(Value::Null);
     }
@@ -288,7 +412,7 @@ fn probes_json(case: &Case, mesh: &Mesh, field: &FlowField) -> anyhow::Result<Va
     Ok(json!({ "points": probes, "pressure_difference": difference }))
 }
 
-fn mesh_json(stats: &cornerflow::mesh::MeshStats) -> Value {
+pub fn mesh_json(stats: &cornerflow::mesh::MeshStats) -> Value {
     json!({
         "vertices": stats.n_vertices,
         "triangles": stats.n_triangles,
@@ -320,7 +444,7 @@ fn solver_json(info: &SolveInfo) -> Value {
     })
 }
 
-fn measured_json(measured: &[MeasuredExponent]) -> Value {
+pub fn measured_json(measured: &[MeasuredExponent]) -> Value {
     let rows: Vec<Value> = measured
         .iter()
         .map(|m| match &m.fit {
@@ -340,7 +464,7 @@ fn measured_json(measured: &[MeasuredExponent]) -> Value {
 }
 
 /// Prints predicted against fitted exponents of the singular corners.
-fn print_measured(measured: &[MeasuredExponent]) {
+pub fn print_measured(measured: &[MeasuredExponent]) {
     if measured.is_empty() {
         return;
     }
@@ -367,7 +491,7 @@ fn print_measured(measured: &[MeasuredExponent]) {
 }
 
 /// Peak resident memory of this process (Linux `VmHWM`), or null where it cannot be read.
-fn peak_memory_bytes() -> Value {
+pub fn peak_memory_bytes() -> Value {
     let status = std::fs::read_to_string("/proc/self/status").unwrap_or_default();
     status
         .lines()

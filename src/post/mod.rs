@@ -44,6 +44,9 @@ pub use forces::{
     surface_force, surface_force_on_parts, volume_force, volume_force_on_parts,
 };
 pub use probe::{PointLocator, PointValue, evaluate_in_cell, locate};
+pub use series::{
+    SignalStats, shedding_frequency, signal_stats, strouhal_number, upward_crossings,
+};
 pub use streamfunction::stream_function;
 pub use wall::{WallReference, WallRow, wall_distribution};
 
