@@ -270,7 +270,7 @@ fn a_time_step_far_above_the_convective_limit_is_reported_as_a_blow_up() {
     match outcome {
         Some(StepError::BlowUp { max_speed, limit, courant, step, .. }) => {
             eprintln!("blow-up detected at step {step}: speed {max_speed:e}, Courant {courant:e}");
-            assert!(!(max_speed <= limit));
+            assert!(max_speed > limit || !max_speed.is_finite());
             assert_eq!(stepper.steps(), step - 1);
             assert!(stepper.field().velocity.iter().all(|u| u[0].is_finite() && u[1].is_finite()));
         }

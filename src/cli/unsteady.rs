@@ -80,13 +80,11 @@ pub fn run_unsteady(case: &Case, mesh: &Mesh, setup: &UnsteadySetup) -> anyhow::
         viscous_form: case.model.viscous_form,
         convection: case.model.equations == Equations::NavierStokes,
     };
+    let defaults = ImexParams::new(time.dt);
     let params = ImexParams {
-        solver: SolverParams {
-            kind: solver_kind(setup.args.linear_solver),
-            ..SolverParams::default()
-        },
+        solver: SolverParams { kind: solver_kind(setup.args.linear_solver), ..defaults.solver },
         speed_scale: case.fluid.reference_velocity,
-        ..ImexParams::new(time.dt)
+        ..defaults
     };
     let mut stepper = ImexStepper::new(mesh, problem, params).map_err(|e| step_error(case, e))?;
     let mut history = History::new(case, mesh, setup.out)?;
@@ -94,6 +92,7 @@ pub fn run_unsteady(case: &Case, mesh: &Mesh, setup: &UnsteadySetup) -> anyhow::
     history.write_fields(case, mesh, &stepper, 0)?;
     let bar = progress_bar(n_steps);
     let mut courant_max: f64 = 0.0;
+    let mut refinement_steps = 0;
     for _ in 0..n_steps {
         let info = match stepper.step() {
             Ok(info) => info,
@@ -103,8 +102,9 @@ pub fn run_unsteady(case: &Case, mesh: &Mesh, setup: &UnsteadySetup) -> anyhow::
             }
         };
         courant_max = courant_max.max(info.courant);
+        refinement_steps += info.refinement_steps;
         history.record(case, mesh, &stepper, info.courant)?;
-        if info.step % time.write_every == 0 || info.step == n_steps {
+        if info.step.is_multiple_of(time.write_every) || info.step == n_steps {
             history.write_fields(case, mesh, &stepper, info.step)?;
         }
         bar.report(&info, history.samples.last().expect("recorded above"));
@@ -112,9 +112,10 @@ pub fn run_unsteady(case: &Case, mesh: &Mesh, setup: &UnsteadySetup) -> anyhow::
     bar.finish();
     let timings = stepper.timings();
     stage.done(&format!(
-        "{} steps, {} unknowns, largest Courant number {courant_max:.3}; setup {:.2} s, right-hand sides {:.2} s, solves {:.2} s",
+        "{} steps, {} unknowns, largest Courant number {courant_max:.3}, {:.2} refinement steps per solve; setup {:.2} s, right-hand sides {:.2} s, solves {:.2} s",
         stepper.steps(),
         stepper.n_unknowns(),
+        refinement_steps as f64 / stepper.steps().max(1) as f64,
         timings.setup.as_secs_f64(),
         timings.rhs.as_secs_f64(),
         timings.solve.as_secs_f64(),
@@ -139,6 +140,7 @@ pub fn run_unsteady(case: &Case, mesh: &Mesh, setup: &UnsteadySetup) -> anyhow::
             "final_time": stepper.time(),
             "unknowns": stepper.n_unknowns(),
             "max_courant_number": courant_max,
+            "mean_refinement_steps": refinement_steps as f64 / stepper.steps().max(1) as f64,
             "timings_s": {
                 "setup": timings.setup.as_secs_f64(),
                 "right_hand_sides": timings.rhs.as_secs_f64(),
@@ -416,7 +418,7 @@ impl Progress {
                 bar.set_message(message);
             }
             Progress::Lines { every } => {
-                if info.step % every == 0 {
+                if info.step.is_multiple_of(*every) {
                     eprintln!("[step] {}: {message}", info.step);
                 }
             }

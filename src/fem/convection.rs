@@ -112,9 +112,9 @@ pub fn add_linearised_convection(
         }
         if newton {
             let n = [w[0] * G[0][0] + w[1] * G[0][1], w[0] * G[1][0] + w[1] * G[1][1]];
-            for k in 0..6 {
-                local.load[2 * k] += s * phi[k] * n[0];
-                local.load[2 * k + 1] += s * phi[k] * n[1];
+            for (k, phi_k) in phi.iter().enumerate() {
+                local.load[2 * k] += s * phi_k * n[0];
+                local.load[2 * k + 1] += s * phi_k * n[1];
             }
         }
     }
@@ -202,8 +202,8 @@ mod tests {
         let mut local = LocalSystem::default();
         add_linearised_convection(&tri, &w, Linearisation::Newton, &mut local);
         let jw = apply(&local, &flatten(&w));
-        for i in 0..12 {
-            assert!((jw[i] - 2.0 * local.load[i]).abs() < 1e-13, "entry {i}");
+        for (i, (a, b)) in jw.iter().zip(&local.load).enumerate() {
+            assert!((a - 2.0 * b).abs() < 1e-13, "entry {i}");
         }
     }
 
@@ -240,8 +240,8 @@ mod tests {
         add_linearised_convection(&tri, &w, Linearisation::Newton, &mut local);
         let mut load = [0.0; 15];
         add_explicit_step_load(&tri, &[[0.0; 2]; 6], &w, None, &mut load);
-        for i in 0..12 {
-            assert!((load[i] + local.load[i]).abs() < 1e-14);
+        for (a, b) in load.iter().zip(&local.load).take(12) {
+            assert!((a + b).abs() < 1e-14);
         }
     }
 }

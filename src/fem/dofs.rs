@@ -138,12 +138,15 @@ impl DofMap {
     /// free, fixed and slip).
     pub fn update_fixed_values(&mut self, constraints: &[NodeConstraint]) -> bool {
         let same_layout = constraints.len() == self.velocity.len()
-            && constraints.iter().zip(&self.velocity).all(|(c, v)| match (c, v[0]) {
-                (NodeConstraint::Fixed(_), ComponentDof::Fixed(_)) => true,
-                (NodeConstraint::Free | NodeConstraint::Slip { .. }, ComponentDof::Free { .. }) => {
-                    true
-                }
-                _ => false,
+            && constraints.iter().zip(&self.velocity).all(|(c, v)| {
+                matches!(
+                    (c, v[0]),
+                    (NodeConstraint::Fixed(_), ComponentDof::Fixed(_))
+                        | (
+                            NodeConstraint::Free | NodeConstraint::Slip { .. },
+                            ComponentDof::Free { .. }
+                        )
+                )
             });
         if !same_layout {
             return false;

@@ -65,7 +65,13 @@ pub struct UnsteadyProblem<'a> {
 }
 
 /// Settings of the time stepper. Defaults: rayon assembly, the linear settings of
-/// [`SolverParams::default`] (regularised `LDLᵀ`), blow-up factor 100, speed scale 1.
+/// [`SolverParams::default`] (regularised `LDLᵀ`) except a relative residual target of
+/// `1e-8` per step, blow-up factor 100, speed scale 1.
+///
+/// The residual target is relative to the step's right-hand side, which is dominated by the
+/// history term `M uⁿ/Δt`; `1e-8` is far below the time-discretisation error and lets the
+/// first regularised solve pass without refinement (measured on the 2D-2 cylinder case:
+/// 1.00 refinement steps per solve at `1e-10`, 0 at `1e-8`).
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct ImexParams {
     /// Time step Δt > 0.
@@ -84,7 +90,8 @@ pub struct ImexParams {
 impl ImexParams {
     /// Default settings for time step `dt`.
     pub fn new(dt: f64) -> Self {
-        ImexParams { dt, solver: SolverParams::default(), blow_up_factor: 100.0, speed_scale: 1.0 }
+        let solver = SolverParams { residual_target: 1e-8, ..SolverParams::default() };
+        ImexParams { dt, solver, blow_up_factor: 100.0, speed_scale: 1.0 }
     }
 }
 
@@ -510,11 +517,11 @@ fn lift_fixed_values(
     step_local_matrix(mesh, problem, a0, cell, &mut local);
     let dofs = pattern.dofs().cell_dofs(&mesh.cells[cell]);
     for (j, d) in dofs.iter().enumerate() {
-        if let ComponentDof::Fixed(value) = *d {
-            if value != 0.0 {
-                for (i, l) in load.iter_mut().enumerate() {
-                    *l -= local.matrix[i][j] * value;
-                }
+        if let ComponentDof::Fixed(value) = *d
+            && value != 0.0
+        {
+            for (i, l) in load.iter_mut().enumerate() {
+                *l -= local.matrix[i][j] * value;
             }
         }
     }

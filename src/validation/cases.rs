@@ -254,7 +254,7 @@ fn run_cylinder_series(
         series.drag.push(cd);
         series.lift.push(cl);
         series.dp.push(dp);
-        if step % (n_steps / 10).max(1) == 0 {
+        if step.is_multiple_of((n_steps / 10).max(1)) {
             progress(&format!("  t = {:.4}: c_D {cd:.5}, c_L {cl:.5}", stepper.time()));
         }
     }
