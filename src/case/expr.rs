@@ -25,6 +25,10 @@ pub enum ExprError {
     Syntax { source_text: String, reason: String },
     #[error("expression `{source_text}` uses unknown variable `{variable}` (allowed: x, y, t)")]
     UnknownVariable { source_text: String, variable: String },
+    #[error(
+        "expression `{source_text}`: the minus sign in `{fragment}` is ambiguous (it would be read as (-a)^b); write -(a^b) or (-a)^b"
+    )]
+    AmbiguousMinus { source_text: String, fragment: String },
 }
 
 impl ScalarExpr {
@@ -34,6 +38,7 @@ impl ScalarExpr {
     /// [`ExprError::Syntax`] when the text does not parse, [`ExprError::UnknownVariable`] when
     /// it names another variable.
     pub fn parse(source: &str) -> Result<Self, ExprError> {
+        check_unary_minus_before_power(source)?;
         let compiled = exmex::parse::<f64>(source).map_err(|e| ExprError::Syntax {
             source_text: source.to_string(),
             reason: e.to_string(),
@@ -95,6 +100,70 @@ impl ScalarExpr {
     }
 }
 
+/// Refuses a unary minus whose operand is raised to a power (`-x^2`, `exp(-(t/2)^2)`): exmex
+/// binds the unary minus tighter than `^`, unlike the usual mathematical convention, so such
+/// an expression would silently mean `(-x)^2`. Binary minus (`2 - x^2`) is unaffected.
+fn check_unary_minus_before_power(source: &str) -> Result<(), ExprError> {
+    let chars: Vec<char> = source.chars().collect();
+    let mut previous: Option<char> = None;
+    for (i, &c) in chars.iter().enumerate() {
+        if c.is_whitespace() {
+            continue;
+        }
+        let unary = c == '-' && previous.is_none_or(|p| "(,+-*/^".contains(p));
+        if unary {
+            let start = skip_spaces(&chars, i + 1);
+            let end = operand_end(&chars, start);
+            let next = skip_spaces(&chars, end);
+            if end > start && chars.get(next) == Some(&'^') {
+                let power_end = operand_end(&chars, skip_spaces(&chars, next + 1));
+                let fragment: String = chars[i..power_end.max(next + 1)].iter().collect();
+                return Err(ExprError::AmbiguousMinus {
+                    source_text: source.to_string(),
+                    fragment: fragment.trim().to_string(),
+                });
+            }
+        }
+        previous = Some(c);
+    }
+    Ok(())
+}
+
+fn skip_spaces(chars: &[char], mut i: usize) -> usize {
+    while chars.get(i).is_some_and(|c| c.is_whitespace()) {
+        i += 1;
+    }
+    i
+}
+
+/// End (exclusive) of the primary operand starting at `start`: a number, a name, a name
+/// followed by a parenthesised argument list, or a parenthesised group.
+fn operand_end(chars: &[char], start: usize) -> usize {
+    let mut i = start;
+    let word = |c: &char| c.is_alphanumeric() || *c == '_' || *c == '.';
+    while chars.get(i).is_some_and(word) {
+        i += 1;
+    }
+    let j = skip_spaces(chars, i);
+    if chars.get(j) == Some(&'(') {
+        let mut depth = 0usize;
+        for (k, &c) in chars.iter().enumerate().skip(j) {
+            match c {
+                '(' => depth += 1,
+                ')' => {
+                    depth -= 1;
+                    if depth == 0 {
+                        return k + 1;
+                    }
+                }
+                _ => {}
+            }
+        }
+        return chars.len();
+    }
+    i
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -119,8 +188,26 @@ mod tests {
     }
 
     #[test]
+    fn a_unary_minus_before_a_power_is_refused_and_binary_minus_is_not() {
+        // exmex reads `-x^2` as `(-x)^2` (measured: 9 at x = 3), so it must be refused.
+        for bad in ["-x^2", "exp(-((t - 0.25) / 0.1)^2)", "2 * (-y ^ 2)", "1 + -sin(x)^2"] {
+            assert!(
+                matches!(ScalarExpr::parse(bad), Err(ExprError::AmbiguousMinus { .. })),
+                "{bad} accepted"
+            );
+        }
+        let ok = ScalarExpr::parse("2 - x^2").unwrap();
+        assert_eq!(ok.eval(3.0, 0.0, 0.0), -7.0);
+        assert_eq!(ScalarExpr::parse("-(x^2)").unwrap().eval(3.0, 0.0, 0.0), -9.0);
+        assert_eq!(ScalarExpr::parse("(-x)^2").unwrap().eval(3.0, 0.0, 0.0), 9.0);
+        assert_eq!(ScalarExpr::parse("-x * 2").unwrap().eval(3.0, 0.0, 0.0), -6.0);
+        assert_eq!(ScalarExpr::parse("exp(-(x^2))").unwrap().eval(0.0, 0.0, 0.0), 1.0);
+    }
+
+    #[test]
     fn constants_evaluate_without_variables() {
         assert_eq!(ScalarExpr::parse("2*3").unwrap().eval(5.0, 5.0, 5.0), 6.0);
         assert_eq!(ScalarExpr::constant(1.5).eval(0.0, 0.0, 0.0), 1.5);
     }
 }
+
