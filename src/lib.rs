@@ -20,4 +20,5 @@ pub mod mesh;
 pub mod output;
 pub mod post;
 pub mod solver;
+pub mod study;
 pub mod validation;

@@ -10,5 +10,6 @@ mod mesh_props;
 mod navier_stokes;
 mod pipeline;
 mod stokes;
+mod study;
 mod validation;
 mod vtk_roundtrip;

@@ -210,4 +210,3 @@ mod tests {
         assert_eq!(ScalarExpr::constant(1.5).eval(0.0, 0.0, 0.0), 1.5);
     }
 }
-

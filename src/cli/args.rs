@@ -24,6 +24,31 @@ pub enum Command {
     Corners(CornersArgs),
     /// Run built-in validation cases and compare with published reference values.
     Validate(ValidateArgs),
+    /// Mesh-convergence study: solve on a sequence of uniformly refined meshes and report
+    /// errors (or differences between levels), observed rates and extrapolated forces.
+    Study(StudyArgs),
+}
+
+#[derive(Debug, Args)]
+pub struct StudyArgs {
+    /// The case file (TOML); a steady case.
+    #[arg(value_name = "CASE")]
+    pub case: PathBuf,
+    /// Number of meshes: the case's mesh and `N − 1` uniform refinements (each splits every
+    /// triangle into four).
+    #[arg(long, value_name = "N", default_value_t = 4)]
+    pub levels: usize,
+    /// How the meshes are refined (only `uniform` so far).
+    #[arg(long, value_enum, default_value_t = RefineMode::Uniform)]
+    pub refine: RefineMode,
+    #[command(flatten)]
+    pub meshing: MeshingOptions,
+}
+
+/// Refinement of a convergence study.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
+pub enum RefineMode {
+    Uniform,
 }
 
 #[derive(Debug, Args)]
@@ -132,6 +157,15 @@ mod tests {
         let Command::Validate(args) = cli.command else { panic!("expected validate") };
         assert_eq!(args.names, vec!["kovasznay".to_string(), "cavity-100".to_string()]);
         assert!(args.quick);
+    }
+
+    #[test]
+    fn study_takes_levels_and_a_refinement_mode() {
+        let cli = Cli::try_parse_from(["cornerflow", "study", "c.toml", "--levels", "3"]).unwrap();
+        let Command::Study(args) = cli.command else { panic!("expected study") };
+        assert_eq!(args.levels, 3);
+        assert_eq!(args.refine, RefineMode::Uniform);
+        assert!(Cli::try_parse_from(["cornerflow", "study", "c.toml", "--refine", "x"]).is_err());
     }
 
     #[test]

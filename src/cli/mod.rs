@@ -6,6 +6,7 @@ mod corners;
 mod mesh;
 mod progress;
 mod run;
+mod study;
 mod unsteady;
 mod validate;
 
@@ -33,6 +34,7 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<()> {
         Command::Run(args) => run::run(args),
         Command::Corners(args) => corners::run(args),
         Command::Validate(args) => validate::run(args),
+        Command::Study(args) => study::run(args),
     }
 }
 

@@ -1,0 +1,100 @@
+//! Convergence studies under uniform refinement (`cornerflow study`): observed rates against
+//! an exact solution and from differences between levels, checked against the optimal
+//! Taylor–Hood rates (benchmarks.md §7.1: 3, 2, 2 in h) on Kovasznay flow (Kovasznay 1948,
+//! λ(Re = 40) = −0.963740544195767, benchmarks.md §6.1).
+
+use std::path::Path;
+
+use cornerflow::case::Case;
+use cornerflow::mesh::generate;
+use cornerflow::study::{ErrorKind, StudyError, StudyParams, run_study};
+
+fn kovasznay_case(with_exact: bool) -> Case {
+    let l = -0.963740544195767;
+    let u = format!("1 - exp({l} * x) * cos(2 * PI * y)");
+    let v = format!("{l} / (2 * PI) * exp({l} * x) * sin(2 * PI * y)");
+    let exact = if with_exact {
+        format!("[exact]\nu = \"{u}\"\nv = \"{v}\"\np = \"-0.5 * exp(2 * {l} * x)\"\n")
+    } else {
+        String::new()
+    };
+    let text = format!(
+        r#"name = "kovasznay"
+[fluid]
+density = 1.0
+kinematic_viscosity = 0.025
+reference_velocity = 1.0
+reference_length = 1.0
+[domain.outer]
+rectangle = [-0.5, -0.5, 1.0, 1.5]
+sides = {{ bottom = "boundary", right = "boundary", top = "boundary", left = "boundary" }}
+[conditions.boundary]
+kind = "velocity"
+ux = "{u}"
+uy = "{v}"
+{exact}
+[mesh]
+size = 0.25
+[model]
+equations = "navier-stokes"
+"#
+    );
+    Case::parse(&text, Path::new("<kovasznay study>")).unwrap()
+}
+
+fn params(levels: usize) -> StudyParams {
+    StudyParams { levels, snap_to_circles: true, max_cells: 1_000_000 }
+}
+
+#[test]
+fn uniform_study_against_the_exact_solution_shows_the_taylor_hood_rates() {
+    let case = kovasznay_case(true);
+    let (mesh, _) = generate(&case.domain, &case.mesh).unwrap();
+    let mut solved = Vec::new();
+    let report = run_study(&case, mesh, &params(3), &mut |level, m, f| {
+        assert_eq!(f.velocity.len(), m.nodes.len());
+        solved.push(level);
+    })
+    .unwrap();
+    assert_eq!(solved, vec![0, 1, 2]);
+    assert_eq!(report.error_kind, ErrorKind::Exact);
+    // Each level quarters the triangles and halves h.
+    for w in report.levels.windows(2) {
+        assert_eq!(w[1].n_cells, 4 * w[0].n_cells);
+        assert!((w[0].h / w[1].h - 2.0).abs() < 1e-9);
+    }
+    let last = report.rates.last().unwrap();
+    eprintln!("Kovasznay study rates: {:?}", report.rates);
+    // Thresholds below the optimal 3, 2, 2 on these coarse Delaunay meshes.
+    assert!(last.in_h.velocity_l2 >= 2.7, "{last:?}");
+    assert!(last.in_h.velocity_h1 >= 1.8, "{last:?}");
+    assert!(last.in_h.pressure_l2 >= 1.8, "{last:?}");
+    // In N (≈ 4× per level) the H1 rate is half the rate in h.
+    assert!((last.in_n.velocity_h1 - last.in_h.velocity_h1 / 2.0).abs() < 0.1, "{last:?}");
+    assert!(report.sobolev_index.unwrap() >= 1.8);
+}
+
+#[test]
+fn difference_study_without_an_exact_solution_shows_the_same_h1_rate() {
+    let case = kovasznay_case(false);
+    let (mesh, _) = generate(&case.domain, &case.mesh).unwrap();
+    let report = run_study(&case, mesh, &params(3), &mut |_, _, _| {}).unwrap();
+    assert_eq!(report.error_kind, ErrorKind::NextLevelDifference);
+    // Differences exist for the first two levels only.
+    assert!(report.levels[0].errors.is_some() && report.levels[2].errors.is_none());
+    let rate = report.rates[0].in_h.velocity_h1;
+    eprintln!("Kovasznay difference H1 rate {rate}");
+    assert!((1.7..=2.3).contains(&rate), "H1 rate of differences {rate}");
+}
+
+#[test]
+fn a_study_that_would_not_fit_in_memory_is_refused_before_solving() {
+    let case = kovasznay_case(false);
+    let (mesh, _) = generate(&case.domain, &case.mesh).unwrap();
+    let cells = mesh.n_cells();
+    let tight = StudyParams { max_cells: 10 * cells, ..params(3) };
+    match run_study(&case, mesh, &tight, &mut |_, _, _| panic!("nothing may be solved")) {
+        Err(StudyError::TooLarge { level: 2, cells: c, .. }) => assert_eq!(c, 16 * cells),
+        other => panic!("expected TooLarge, got {other:?}"),
+    }
+}
