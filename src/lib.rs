@@ -19,6 +19,7 @@ pub mod geometry;
 pub mod mesh;
 pub mod output;
 pub mod post;
+pub mod regression;
 pub mod solver;
 pub mod study;
 pub mod validation;

@@ -263,3 +263,42 @@ fn unconverged_newton_exits_with_code_1_and_keeps_the_last_iterate() {
     let mesh = read_vtu_with_meshio(&dir.path().join("out/solution-unconverged.vtu"));
     assert!(mesh["point_data"]["velocity"].as_array().is_some());
 }
+
+#[test]
+fn check_writes_a_baseline_passes_against_it_and_fails_on_a_regression() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("case.toml"), UNSTEADY_CASE).unwrap();
+    let update =
+        run_cli(dir.path(), &["check", "case.toml", "--baseline", "base.json", "--update"]);
+    assert!(update.status.success(), "{}", String::from_utf8_lossy(&update.stderr));
+    let text = std::fs::read_to_string(dir.path().join("base.json")).unwrap();
+    let base: serde_json::Value = serde_json::from_str(&text).unwrap();
+    let names: Vec<&str> = base["quantities"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|q| q["name"].as_str().unwrap())
+        .collect();
+    assert!(names.contains(&"force.body.drag_volume_max"), "{names:?}");
+    assert!(names.contains(&"pressure_difference_final"), "{names:?}");
+
+    let same = run_cli(dir.path(), &["check", "case.toml", "--baseline", "base.json"]);
+    assert!(same.status.success(), "{}", String::from_utf8_lossy(&same.stderr));
+
+    // Shift the stored drag by 1 %: far outside the default 1e-4 relative tolerance.
+    let mut shifted = base.clone();
+    for q in shifted["quantities"].as_array_mut().unwrap() {
+        if q["name"] == "force.body.drag_volume_max" {
+            q["value"] = serde_json::json!(q["value"].as_f64().unwrap() * 1.01);
+        }
+    }
+    std::fs::write(dir.path().join("shifted.json"), shifted.to_string()).unwrap();
+    let regressed = run_cli(dir.path(), &["check", "case.toml", "--baseline", "shifted.json"]);
+    assert_eq!(regressed.status.code(), Some(1));
+    assert!(String::from_utf8_lossy(&regressed.stdout).contains("REGRESSED"));
+
+    std::fs::write(dir.path().join("broken.json"), "{ not json").unwrap();
+    let broken = run_cli(dir.path(), &["check", "case.toml", "--baseline", "broken.json"]);
+    assert_eq!(broken.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&broken.stderr).contains("broken.json:1:"));
+}

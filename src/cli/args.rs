@@ -27,6 +27,23 @@ pub enum Command {
     /// Mesh-convergence study: solve on a sequence of uniformly refined meshes and report
     /// errors (or differences between levels), observed rates and extrapolated forces.
     Study(StudyArgs),
+    /// Regression check: run a case and compare its forces and exponents with a baseline.
+    Check(CheckArgs),
+}
+
+#[derive(Debug, Args)]
+pub struct CheckArgs {
+    /// The case file (TOML).
+    #[arg(value_name = "CASE")]
+    pub case: PathBuf,
+    /// The baseline JSON file (quantities with tolerances).
+    #[arg(long, value_name = "FILE")]
+    pub baseline: PathBuf,
+    /// Write (or overwrite) the baseline from this run, with default tolerances.
+    #[arg(long)]
+    pub update: bool,
+    #[command(flatten)]
+    pub meshing: MeshingOptions,
 }
 
 #[derive(Debug, Args)]
@@ -67,7 +84,7 @@ pub struct ValidateArgs {
 }
 
 /// Options shared by the commands that mesh a case.
-#[derive(Debug, Args)]
+#[derive(Clone, Debug, Args)]
 pub struct MeshingOptions {
     /// Output folder (default: the case's `output.directory`).
     #[arg(short = 'o', long = "output", value_name = "DIR")]
@@ -166,6 +183,16 @@ mod tests {
         assert_eq!(args.levels, 3);
         assert_eq!(args.refine, RefineMode::Uniform);
         assert!(Cli::try_parse_from(["cornerflow", "study", "c.toml", "--refine", "x"]).is_err());
+    }
+
+    #[test]
+    fn check_needs_a_baseline_and_takes_update() {
+        let cli =
+            Cli::try_parse_from(["cornerflow", "check", "c.toml", "--baseline", "b.json"]).unwrap();
+        let Command::Check(args) = cli.command else { panic!("expected check") };
+        assert_eq!(args.baseline, PathBuf::from("b.json"));
+        assert!(!args.update);
+        assert!(Cli::try_parse_from(["cornerflow", "check", "c.toml"]).is_err());
     }
 
     #[test]

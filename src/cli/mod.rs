@@ -2,6 +2,7 @@
 //! reports progress on standard error. Only this layer uses `anyhow`.
 
 pub mod args;
+mod check;
 mod corners;
 mod mesh;
 mod progress;
@@ -35,6 +36,7 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<()> {
         Command::Corners(args) => corners::run(args),
         Command::Validate(args) => validate::run(args),
         Command::Study(args) => study::run(args),
+        Command::Check(args) => check::run(args),
     }
 }
 
