@@ -3,6 +3,7 @@
 
 pub mod args;
 mod corners;
+mod export;
 mod mesh;
 mod progress;
 mod run;
