@@ -76,7 +76,10 @@ fn bench_stages(
     linear: &LinearParams,
 ) {
     let mut group = c.benchmark_group(group_name);
-    group.sample_size(10).warm_up_time(Duration::from_secs(1));
+    group
+        .sample_size(10)
+        .warm_up_time(Duration::from_secs(1))
+        .measurement_time(Duration::from_secs(10));
     group.bench_function("symbolic", |b| {
         b.iter(|| black_box(SymbolicSystem::analyse(pattern, linear.kind).expect("analysis")))
     });

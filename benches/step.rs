@@ -113,6 +113,7 @@ fn bench_newton(c: &mut Criterion, mesh: &Mesh, conditions: &[BoundaryCondition]
     c.benchmark_group("step")
         .sample_size(10)
         .warm_up_time(Duration::from_secs(1))
+        .measurement_time(Duration::from_secs(10))
         .bench_function("newton", |b| b.iter(|| black_box(newton_step(&mut system))));
 }
 
