@@ -302,3 +302,87 @@ fn check_writes_a_baseline_passes_against_it_and_fails_on_a_regression() {
     assert_eq!(broken.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&broken.stderr).contains("broken.json:1:"));
 }
+
+/// Reads a Matrix Market `coordinate real general` file: returns (rows, cols, entries) with
+/// 0-based indices. Independent of the writer: it follows the format's text layout only.
+fn read_matrix_market(path: &Path) -> (usize, usize, Vec<(usize, usize, f64)>) {
+    let text = std::fs::read_to_string(path).unwrap();
+    let mut lines = text.lines();
+    assert_eq!(lines.next().unwrap(), "%%MatrixMarket matrix coordinate real general");
+    let mut data = lines.filter(|l| !l.starts_with('%'));
+    let size: Vec<usize> =
+        data.next().unwrap().split_whitespace().map(|t| t.parse().unwrap()).collect();
+    let entries: Vec<(usize, usize, f64)> = data
+        .map(|l| {
+            let t: Vec<&str> = l.split_whitespace().collect();
+            (
+                t[0].parse::<usize>().unwrap() - 1,
+                t[1].parse::<usize>().unwrap() - 1,
+                t[2].parse().unwrap(),
+            )
+        })
+        .collect();
+    assert_eq!(entries.len(), size[2], "entry count of {}", path.display());
+    (size[0], size[1], entries)
+}
+
+#[test]
+fn export_system_writes_the_solved_matrix_its_rhs_and_the_solver_figures() {
+    let dir = tempfile::tempdir().unwrap();
+    let text = std::fs::read_to_string(repo_root().join("examples/cavity.toml")).unwrap();
+    write_case(dir.path(), &text.replace("size = 0.04", "size = 0.1"));
+    let out = run_cli(dir.path(), &["run", "case.toml", "-o", "out", "--export-system", "sys"]);
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let sys = dir.path().join("sys");
+    let info: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(sys.join("info.json")).unwrap()).unwrap();
+    let n = info["n"].as_u64().unwrap() as usize;
+    let n_velocity = info["velocity_unknowns"].as_u64().unwrap() as usize;
+    assert_eq!(n, n_velocity + info["pressure_unknowns"].as_u64().unwrap() as usize);
+    // The closed cavity pins one pressure; the summary of the same run reports it too.
+    assert_eq!(info["pressure_pinned"], true);
+    let summary: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(dir.path().join("out/summary.json")).unwrap(),
+    )
+    .unwrap();
+    assert_eq!(info["cornerflow"]["relative_residual"], summary["solver"]["relative_residual"]);
+    assert!(info["cornerflow"]["times_s"]["factor_and_solve"].as_f64().unwrap() > 0.0);
+
+    let (rows, cols, entries) = read_matrix_market(&sys.join("matrix.mtx"));
+    assert_eq!((rows, cols, entries.len()), (n, n, info["nnz"].as_u64().unwrap() as usize));
+    let mut matrix = std::collections::HashMap::new();
+    for &(i, j, v) in &entries {
+        assert!(i < n && j < n);
+        assert!(matrix.insert((i, j), v).is_none(), "duplicate entry ({i}, {j})");
+    }
+    // The Stokes matrix [[A, Bᵀ], [B, 0]] is symmetric: each entry is summed from symmetric
+    // element matrices in the same cell order on both sides, so the values agree exactly up
+    // to round-off of the sums (relative 1e-12 is far above that and far below any value).
+    let scale = entries.iter().map(|e| e.2.abs()).fold(0.0, f64::max);
+    for (&(i, j), &v) in &matrix {
+        let w = matrix.get(&(j, i)).copied().unwrap_or(0.0);
+        assert!((v - w).abs() <= 1e-12 * scale, "A[{i},{j}] = {v} but A[{j},{i}] = {w}");
+    }
+    // The viscous block has a positive diagonal; the pressure block is stored as zeros.
+    assert!((0..n_velocity).all(|d| matrix.get(&(d, d)).is_some_and(|v| *v > 0.0)));
+    assert!((n_velocity..n).all(|d| matrix.get(&(d, d)).is_some_and(|v| *v == 0.0)));
+
+    let rhs = std::fs::read_to_string(sys.join("rhs.mtx")).unwrap();
+    let mut rhs_lines = rhs.lines().filter(|l| !l.starts_with('%'));
+    assert_eq!(rhs_lines.next().unwrap(), format!("{n} 1"));
+    let b: Vec<f64> = rhs_lines.map(|l| l.parse().unwrap()).collect();
+    assert_eq!(b.len(), n);
+    assert!(b.iter().any(|v| *v != 0.0), "the moving lid drives the flow");
+}
+
+#[test]
+fn export_system_is_refused_for_a_navier_stokes_case() {
+    let case = repo_root().join("examples/cylinder-benchmark.toml");
+    let dir = tempfile::tempdir().unwrap();
+    let out =
+        run_cli(dir.path(), &["run", case.to_str().unwrap(), "-o", "out", "--export-system", "s"]);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{stderr}");
+    assert!(stderr.contains("--export-system"), "{stderr}");
+    assert!(!dir.path().join("s").exists());
+}

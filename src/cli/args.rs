@@ -117,6 +117,11 @@ pub struct RunArgs {
     /// iterative refinement; fastest) or `lu` (general LU; slower, kept as a fallback).
     #[arg(long, value_enum, default_value_t = LinearSolver::Ldlt)]
     pub linear_solver: LinearSolver,
+    /// Also write the assembled system of a steady Stokes case to this folder:
+    /// `matrix.mtx` and `rhs.mtx` (Matrix Market) and `info.json` (sizes, the solver's own
+    /// timings and residual), for timing other sparse solvers on the same matrix.
+    #[arg(long, value_name = "DIR")]
+    pub export_system: Option<PathBuf>,
 }
 
 /// Choice of the sparse direct solver.
@@ -160,6 +165,17 @@ mod tests {
         let Command::Run(args) = cli.command else { panic!("expected run") };
         assert_eq!(args.linear_solver, LinearSolver::Lu);
         assert!(Cli::try_parse_from(["cornerflow", "run", "--linear-solver", "cg"]).is_err());
+    }
+
+    #[test]
+    fn run_takes_an_export_folder() {
+        let cli = Cli::try_parse_from(["cornerflow", "run"]).unwrap();
+        let Command::Run(args) = cli.command else { panic!("expected run") };
+        assert!(args.export_system.is_none());
+        let cli = Cli::try_parse_from(["cornerflow", "run", "--export-system", "sys"]).unwrap();
+        let Command::Run(args) = cli.command else { panic!("expected run") };
+        assert_eq!(args.export_system, Some(PathBuf::from("sys")));
+        assert!(Cli::try_parse_from(["cornerflow", "run", "--export-system"]).is_err());
     }
 
     #[test]

@@ -26,6 +26,7 @@ pub fn run(args: &CheckArgs) -> anyhow::Result<()> {
         meshing: args.meshing.clone(),
         threads: None,
         linear_solver: LinearSolver::Ldlt,
+        export_system: None,
     };
     super::run::run(&run_args)?;
     let summary_path = output_dir(&case, &args.meshing).join("summary.json");

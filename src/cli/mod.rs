@@ -4,6 +4,7 @@
 pub mod args;
 mod check;
 mod corners;
+mod export;
 mod mesh;
 mod progress;
 mod run;

@@ -42,6 +42,7 @@ pub fn run(args: &RunArgs) -> anyhow::Result<()> {
             Case::default_case()
         }
     };
+    super::export::check_supported(args.export_system.as_deref(), &case)?;
     let started = Instant::now();
     let out = output_dir(&case, &args.meshing);
     let corners = try_analyse_corners(
@@ -66,6 +67,9 @@ pub fn run(args: &RunArgs) -> anyhow::Result<()> {
     let (field, solver) = match case.model.equations {
         Equations::Stokes => {
             let (field, info) = solve_steady_stokes(&case, &mesh, args.linear_solver)?;
+            if let Some(dir) = &args.export_system {
+                super::export::export_system(dir, &case, &mesh, args.linear_solver, &info)?;
+            }
             (field, solver_json(&info))
         }
         Equations::NavierStokes => solve_steady_navier_stokes_stage(&case, &mesh, &out, args)?,

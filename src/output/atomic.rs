@@ -33,7 +33,21 @@ where
         writer.flush().map_err(io_err)?;
     }
     tmp.as_file().sync_all().map_err(io_err)?;
+    make_readable(tmp.as_file()).map_err(io_err)?;
     tmp.persist(path).map_err(|e| io_err(e.error))?;
+    Ok(())
+}
+
+/// Gives a result file the usual permissions `rw-r--r--` (the temporary file is created
+/// `rw-------`, which would hide results from other users of a shared machine).
+#[cfg(unix)]
+fn make_readable(file: &std::fs::File) -> std::io::Result<()> {
+    use std::os::unix::fs::PermissionsExt;
+    file.set_permissions(std::fs::Permissions::from_mode(0o644))
+}
+
+#[cfg(not(unix))]
+fn make_readable(_file: &std::fs::File) -> std::io::Result<()> {
     Ok(())
 }
 
@@ -51,6 +65,17 @@ pub fn write_text_atomic(path: &Path, text: &str) -> Result<(), OutputError> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    #[cfg(unix)]
+    fn written_files_are_readable_by_everyone() {
+        use std::os::unix::fs::PermissionsExt;
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("r.txt");
+        write_text_atomic(&path, "x").unwrap();
+        let mode = std::fs::metadata(&path).unwrap().permissions().mode() & 0o777;
+        assert_eq!(mode, 0o644);
+    }
 
     #[test]
     fn failed_fill_leaves_the_previous_file_intact() {

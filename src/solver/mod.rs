@@ -360,3 +360,21 @@ pub fn expand_field(mesh: &Mesh, dofs: &DofMap, x: &[f64]) -> FlowField {
     }
     FlowField { velocity, pressure }
 }
+
+/// Builds the pattern and assembles the Stokes matrix and right-hand side exactly as
+/// [`solve_stokes`] does before it factorises: takes the mesh, the problem and the settings
+/// (only `parallelism` and `flux_tolerance` matter here); returns the pattern (dof numbering,
+/// CSC structure) and the assembled values and right-hand side on it. For exporting the
+/// system or benchmarking the solver stages on it.
+///
+/// # Errors
+/// As [`build_pattern`] and [`assemble_stokes`].
+pub fn assemble_stokes_system(
+    mesh: &Mesh,
+    problem: &StokesProblem,
+    params: &SolverParams,
+) -> Result<(SystemPattern, AssembledSystem), SolveError> {
+    let (pattern, _) = build_pattern(mesh, problem, params)?;
+    let system = assemble_stokes(&pattern, mesh, problem, params.parallelism)?;
+    Ok((pattern, system))
+}
