@@ -179,7 +179,7 @@ pub fn run_study(
     }
     let error_kind =
         if case.exact.is_some() { ErrorKind::Exact } else { ErrorKind::NextLevelDifference };
-    let mut levels = Vec::new();
+    let mut levels: Vec<LevelResult> = Vec::new();
     let mut previous: Option<(Mesh, FlowField)> = None;
     let finest = coarse.n_cells().saturating_mul(4usize.saturating_pow(params.levels as u32 - 1));
     if finest > params.max_cells {
@@ -203,7 +203,9 @@ pub fn run_study(
             (error_kind, &previous)
         {
             let d = difference_norms(coarse_mesh, coarse_field, &mesh, &field);
-            levels.last_mut().map(|l: &mut LevelResult| l.errors = Some(d));
+            if let Some(l) = levels.last_mut() {
+                l.errors = Some(d);
+            }
         }
         let errors = match (&case.exact, error_kind) {
             (Some(_), ErrorKind::Exact) => Some(exact_norms(case, &mesh, &field)),
