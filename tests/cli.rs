@@ -130,6 +130,23 @@ fn a_mesh_larger_than_the_cap_is_refused_with_the_estimate_unless_forced() {
 }
 
 #[test]
+fn a_solve_that_cannot_fit_in_memory_is_refused_before_meshing() {
+    // 0.0002 on the unit square is about 5.8e7 triangles: tens of terabytes for the direct
+    // solve by the measured memory law (src/cli/mesh.rs), more than any machine here has.
+    let dir = tempfile::tempdir().unwrap();
+    let text = std::fs::read_to_string(repo_root().join("examples/cavity.toml")).unwrap();
+    write_case(
+        dir.path(),
+        &text.replace("size = 0.04", "size = 0.0002\nmax_triangles = 1000000000"),
+    );
+    let out = run_cli(dir.path(), &["run", "case.toml", "-o", "out"]);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{stderr}");
+    assert!(stderr.contains("GB") && stderr.contains("--force"), "{stderr}");
+    assert!(!dir.path().join("out/mesh.vtu").exists(), "nothing may be meshed");
+}
+
+#[test]
 fn missing_case_file_and_bad_options_are_bad_input() {
     let dir = tempfile::tempdir().unwrap();
     let out = run_cli(dir.path(), &["mesh", "nowhere.toml"]);

@@ -25,6 +25,63 @@ pub fn run(args: &MeshArgs) -> anyhow::Result<()> {
     Ok(())
 }
 
+/// Peak memory of a steady solve as a power law `bytes = B · (cells / C)^e` of the triangle
+/// count, fitted to measurements with `/usr/bin/time -v` (2026-12-03, release build):
+/// Navier–Stokes (sparse LU, the fill grows faster than the unknowns) 1.47 GB at 39,339 and
+/// 4.08 GB at 89,120 triangles of the backward-step example, `e = 1.25`; Stokes (`LDLᵀ`)
+/// 2.5 GB at about 230k triangles of the default case (README), `e = 1.15` assumed.
+const MEMORY_LAW_LU: (f64, f64, f64) = (1.47e9, 39_339.0, 1.25);
+const MEMORY_LAW_LDLT: (f64, f64, f64) = (2.5e9, 230_000.0, 1.15);
+
+/// Triangles the finest level may have: the inverse of the memory law at 80 % of the memory
+/// available now (`MemAvailable` of `/proc/meminfo`, 16 GiB when it cannot be read).
+pub fn cell_budget(case: &cornerflow::case::Case) -> usize {
+    let (bytes, cells, exponent) = memory_law(case);
+    (cells * (0.8 * available_memory() / bytes).powf(1.0 / exponent)) as usize
+}
+
+/// The memory law of the case's solver path: sparse LU for steady Navier–Stokes, `LDLᵀ` for
+/// Stokes and for every time-dependent run (its step matrix is symmetric).
+fn memory_law(case: &cornerflow::case::Case) -> (f64, f64, f64) {
+    let lu = case.model.equations == cornerflow::case::Equations::NavierStokes
+        && case.model.time.is_none();
+    if lu { MEMORY_LAW_LU } else { MEMORY_LAW_LDLT }
+}
+
+/// `MemAvailable` of `/proc/meminfo` in bytes (16 GiB when it cannot be read).
+fn available_memory() -> f64 {
+    let meminfo = std::fs::read_to_string("/proc/meminfo").unwrap_or_default();
+    meminfo
+        .lines()
+        .find_map(|l| l.strip_prefix("MemAvailable:"))
+        .and_then(|v| v.trim().trim_end_matches("kB").trim().parse::<f64>().ok())
+        .map_or(16.0 * (1u64 << 30) as f64, |kb| kb * 1024.0)
+}
+
+/// Refuses (as bad input) a solve whose estimated peak memory — the memory law at the
+/// mesher's triangle estimate — exceeds 80 % of the available memory, unless `--force`.
+///
+/// # Errors
+/// [`BadInput`] naming the case file, the estimate and the memory available.
+pub fn check_memory(case: &Case, options: &MeshingOptions) -> anyhow::Result<()> {
+    let triangles = cornerflow::mesh::estimate_triangles(&case.domain, &case.mesh);
+    if options.force || !triangles.is_finite() {
+        return Ok(());
+    }
+    let (bytes, cells, exponent) = memory_law(case);
+    let needed = bytes * (triangles / cells).powf(exponent);
+    let available = available_memory();
+    if needed > 0.8 * available {
+        return Err(anyhow::Error::new(BadInput(format!(
+            "{}: the mesh (about {triangles:.0} triangles) needs about {:.1} GB for the solve, more than 80 % of the {:.1} GB available; coarsen `mesh.size`, or pass --force",
+            case.source.display(),
+            needed / 1e9,
+            available / 1e9
+        ))));
+    }
+    Ok(())
+}
+
 /// Meshes the case, honouring `--force` (which lifts the triangle cap).
 pub fn mesh_case(case: &Case, options: &MeshingOptions) -> anyhow::Result<(Mesh, MeshStats)> {
     let mut controls = case.mesh.clone();

@@ -25,7 +25,7 @@ use cornerflow::solver::{
 use serde_json::{Value, json};
 
 use super::args::{LinearSolver, RunArgs};
-use super::mesh::{mesh_case, output_dir, print_summary, write_mesh_vtu};
+use super::mesh::{check_memory, mesh_case, output_dir, print_summary, write_mesh_vtu};
 use super::progress::Stage;
 use super::unsteady::{UnsteadySetup, run_unsteady};
 use super::{BadInput, load_case};
@@ -52,6 +52,7 @@ pub fn run(args: &RunArgs) -> anyhow::Result<()> {
         &AnalysisParams::default(),
     )
     .with_context(|| format!("corner analysis of {}", case.source.display()))?;
+    check_memory(&case, &args.meshing)?;
     let clock = Instant::now();
     let (mesh, stats) = mesh_case(&case, &args.meshing)?;
     let mesh_time = clock.elapsed();

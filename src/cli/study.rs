@@ -13,7 +13,7 @@ use cornerflow::study::{ErrorKind, StudyError, StudyParams, StudyReport, run_stu
 use plotters::prelude::*;
 
 use super::args::StudyArgs;
-use super::mesh::{mesh_case, output_dir};
+use super::mesh::{cell_budget, mesh_case, output_dir};
 use super::progress::Stage;
 use super::run::{solve_error, write_field_vtu};
 use super::{BadInput, load_case};
@@ -52,30 +52,6 @@ pub fn run(args: &StudyArgs) -> anyhow::Result<()> {
     write_outputs(&report, &out)?;
     eprintln!("results in {}", out.display());
     Ok(())
-}
-
-/// Peak memory of a steady solve as a power law `bytes = B · (cells / C)^e` of the triangle
-/// count, fitted to measurements with `/usr/bin/time -v` (2026-12-03, release build):
-/// Navier–Stokes (sparse LU, the fill grows faster than the unknowns) 1.47 GB at 39,339 and
-/// 4.08 GB at 89,120 triangles of the backward-step example, `e = 1.25`; Stokes (`LDLᵀ`)
-/// 2.5 GB at about 230k triangles of the default case (README), `e = 1.15` assumed.
-const MEMORY_LAW_LU: (f64, f64, f64) = (1.47e9, 39_339.0, 1.25);
-const MEMORY_LAW_LDLT: (f64, f64, f64) = (2.5e9, 230_000.0, 1.15);
-
-/// Triangles the finest level may have: the inverse of the memory law at 80 % of the memory
-/// available now (`MemAvailable` of `/proc/meminfo`, 16 GiB when it cannot be read).
-fn cell_budget(case: &cornerflow::case::Case) -> usize {
-    let meminfo = std::fs::read_to_string("/proc/meminfo").unwrap_or_default();
-    let available = meminfo
-        .lines()
-        .find_map(|l| l.strip_prefix("MemAvailable:"))
-        .and_then(|v| v.trim().trim_end_matches("kB").trim().parse::<f64>().ok())
-        .map_or(16.0 * (1u64 << 30) as f64, |kb| kb * 1024.0);
-    let (bytes, cells, exponent) = match case.model.equations {
-        cornerflow::case::Equations::NavierStokes => MEMORY_LAW_LU,
-        cornerflow::case::Equations::Stokes => MEMORY_LAW_LDLT,
-    };
-    (cells * (0.8 * available / bytes).powf(1.0 / exponent)) as usize
 }
 
 fn print_report(report: &StudyReport) {
