@@ -21,7 +21,7 @@ use serde_json::json;
 use super::BadInput;
 use super::args::LinearSolver;
 use super::progress::Stage;
-use super::run::{solve_error, solver_kind, stokes_problem};
+use super::run::{solve_error, solver_kind};
 
 /// Refuses `--export-system` for cases that are not steady Stokes (the only path that
 /// exports); takes the option's value and the case, returns bad input otherwise.
@@ -51,8 +51,9 @@ pub fn export_system(
     let stage = Stage::start("export", "assembled Stokes system as Matrix Market");
     let kind = solver_kind(linear_solver);
     let params = SolverParams { kind, ..SolverParams::default() };
-    let (pattern, system) = assemble_stokes_system(mesh, &stokes_problem(case), &params)
-        .map_err(|e| solve_error(case, e))?;
+    let (pattern, system) =
+        assemble_stokes_system(mesh, &cornerflow::solver::StokesProblem::from_case(case), &params)
+            .map_err(|e| solve_error(case, e))?;
     let n = pattern.n();
     let comment = format!(
         "steady Stokes system of {} (Taylor-Hood P2-P1), written by cornerflow {}\n\

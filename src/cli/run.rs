@@ -121,19 +121,6 @@ pub fn model_name(case: &Case) -> String {
     if case.model.time.is_some() { format!("unsteady-{equations}") } else { equations.into() }
 }
 
-/// The Newton settings of a case.
-pub fn newton_params(case: &Case) -> NewtonParams {
-    let n = &case.model.nonlinear;
-    NewtonParams {
-        picard_steps: n.picard_steps,
-        max_iterations: n.max_iterations,
-        residual_tolerance: n.tolerance,
-        continuation_steps: n.continuation_steps,
-        continuation_factor: n.continuation_factor,
-        ..NewtonParams::default()
-    }
-}
-
 /// Solves the steady Navier–Stokes problem by Newton's method. When the iteration does not
 /// converge, the last iterate is written as `solution-unconverged.vtu` before the error.
 fn solve_steady_navier_stokes_stage(
@@ -149,9 +136,14 @@ fn solve_steady_navier_stokes_stage(
             case.fluid.reynolds_number()
         ),
     );
-    let problem = stokes_problem(case);
+    let problem = StokesProblem::from_case(case);
     let params = SolverParams { kind: solver_kind(args.linear_solver), ..SolverParams::default() };
-    match solve_steady_navier_stokes(mesh, &problem, &params, &newton_params(case)) {
+    match solve_steady_navier_stokes(
+        mesh,
+        &problem,
+        &params,
+        &NewtonParams::from_controls(&case.model.nonlinear),
+    ) {
         Ok((field, info)) => {
             for (k, it) in info.iterations.iter().enumerate() {
                 eprintln!(
@@ -205,17 +197,6 @@ fn newton_json(info: &NewtonInfo) -> Value {
     })
 }
 
-/// The steady problem of a case at `t = 0`.
-pub fn stokes_problem(case: &Case) -> StokesProblem<'_> {
-    StokesProblem {
-        viscosity: case.fluid.kinematic_viscosity,
-        conditions: &case.conditions,
-        body_force: case.body_force.as_ref(),
-        viscous_form: case.model.viscous_form,
-        time: 0.0,
-    }
-}
-
 pub fn solver_kind(choice: LinearSolver) -> SolverKind {
     match choice {
         LinearSolver::Ldlt => SolverKind::Ldlt,
@@ -241,7 +222,7 @@ fn solve_steady_stokes(
     let kind = solver_kind(linear_solver);
     let name = if kind == SolverKind::Lu { "LU" } else { "LDLᵀ" };
     let stage = Stage::start("solve", &format!("steady Stokes, Taylor–Hood P2–P1, sparse {name}"));
-    let problem = stokes_problem(case);
+    let problem = StokesProblem::from_case(case);
     let (field, info) =
         solve_stokes(mesh, &problem, &SolverParams { kind, ..SolverParams::default() })
             .map_err(|e| solve_error(case, e))?;

@@ -63,6 +63,28 @@ pub struct StokesProblem<'a> {
     pub time: f64,
 }
 
+impl<'a> StokesProblem<'a> {
+    /// The steady problem of a case at `t = 0`: its viscosity, conditions, body force and
+    /// viscous form.
+    pub fn from_case(case: &'a crate::case::Case) -> Self {
+        StokesProblem {
+            viscosity: case.fluid.kinematic_viscosity,
+            conditions: &case.conditions,
+            body_force: case.body_force.as_ref(),
+            viscous_form: case.model.viscous_form,
+            time: 0.0,
+        }
+    }
+}
+
+/// The body force `f(x, y)` at time `time` as a closure for the element kernels, or `None`.
+pub(crate) fn body_force_at(
+    force: Option<&[ScalarExpr; 2]>,
+    time: f64,
+) -> Option<impl Fn(f64, f64) -> [f64; 2] + Sync + '_> {
+    force.map(move |[fx, fy]| move |x: f64, y: f64| [fx.eval(x, y, time), fy.eval(x, y, time)])
+}
+
 /// Solver settings. Defaults: `LDLᵀ`, dynamic regularisation, rayon assembly, sequential
 /// factorisation, relative residual target `1e-10`, at most 5 refinement steps, flux
 /// tolerance `1e-3`.
@@ -325,10 +347,7 @@ pub fn assemble_stokes_into(
     parallelism: Parallelism,
     system: &mut AssembledSystem,
 ) -> Result<(), SolveError> {
-    let time = problem.time;
-    let force_closure = problem
-        .body_force
-        .map(|[fx, fy]| move |x: f64, y: f64| [fx.eval(x, y, time), fy.eval(x, y, time)]);
+    let force_closure = body_force_at(problem.body_force, problem.time);
     let force: Option<&(dyn Fn(f64, f64) -> [f64; 2] + Sync)> =
         force_closure.as_ref().map(|f| f as &(dyn Fn(f64, f64) -> [f64; 2] + Sync));
     assemble_into(pattern, mesh, parallelism, system, |cell, local| {

@@ -72,6 +72,20 @@ impl Default for NewtonParams {
     }
 }
 
+impl NewtonParams {
+    /// The settings of a case's `[model.nonlinear]` table.
+    pub fn from_controls(n: &crate::case::NonlinearControls) -> Self {
+        NewtonParams {
+            picard_steps: n.picard_steps,
+            max_iterations: n.max_iterations,
+            residual_tolerance: n.tolerance,
+            continuation_steps: n.continuation_steps,
+            continuation_factor: n.continuation_factor,
+            ..NewtonParams::default()
+        }
+    }
+}
+
 /// One nonlinear step.
 #[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
 pub struct NewtonIteration {
@@ -256,10 +270,7 @@ impl NewtonSolver<'_> {
     ) -> Result<(), SolveError> {
         let start = Instant::now();
         let (mesh, problem) = (self.mesh, self.problem);
-        let time = problem.time;
-        let force_closure = problem
-            .body_force
-            .map(|[fx, fy]| move |x: f64, y: f64| [fx.eval(x, y, time), fy.eval(x, y, time)]);
+        let force_closure = super::body_force_at(problem.body_force, problem.time);
         let force: Option<&(dyn Fn(f64, f64) -> [f64; 2] + Sync)> =
             force_closure.as_ref().map(|f| f as &(dyn Fn(f64, f64) -> [f64; 2] + Sync));
         assemble_into(self.pattern, mesh, self.parallelism, &mut self.system, |cell, local| {

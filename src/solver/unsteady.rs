@@ -407,9 +407,7 @@ impl<'a> ImexStepper<'a> {
         let convection = self.problem.convection;
         let (mesh, problem, pattern) = (self.mesh, self.problem, &self.pattern);
         let has_fixed = &self.cell_has_fixed;
-        let force_closure = problem
-            .body_force
-            .map(|[fx, fy]| move |x: f64, y: f64| [fx.eval(x, y, time), fy.eval(x, y, time)]);
+        let force_closure = super::body_force_at(problem.body_force, time);
         let force: Option<&(dyn Fn(f64, f64) -> [f64; 2] + Sync)> =
             force_closure.as_ref().map(|f| f as &(dyn Fn(f64, f64) -> [f64; 2] + Sync));
         let combine = |nodes: &[usize; 6], s1: f64, s2: f64| -> [[f64; 2]; 6] {

@@ -222,13 +222,7 @@ pub fn run_study(
 
 /// Solves the case's steady problem on `mesh`; returns the field and the unknown count.
 fn solve_level(case: &Case, mesh: &Mesh, level: usize) -> Result<(FlowField, usize), StudyError> {
-    let problem = StokesProblem {
-        viscosity: case.fluid.kinematic_viscosity,
-        conditions: &case.conditions,
-        body_force: case.body_force.as_ref(),
-        viscous_form: case.model.viscous_form,
-        time: 0.0,
-    };
+    let problem = StokesProblem::from_case(case);
     let params = SolverParams::default();
     match case.model.equations {
         Equations::Stokes => {
@@ -237,15 +231,7 @@ fn solve_level(case: &Case, mesh: &Mesh, level: usize) -> Result<(FlowField, usi
             Ok((field, info.n_velocity_dofs + info.n_pressure_dofs))
         }
         Equations::NavierStokes => {
-            let n = &case.model.nonlinear;
-            let newton = NewtonParams {
-                picard_steps: n.picard_steps,
-                max_iterations: n.max_iterations,
-                residual_tolerance: n.tolerance,
-                continuation_steps: n.continuation_steps,
-                continuation_factor: n.continuation_factor,
-                ..NewtonParams::default()
-            };
+            let newton = NewtonParams::from_controls(&case.model.nonlinear);
             let (field, info) = solve_steady_navier_stokes(mesh, &problem, &params, &newton)
                 .map_err(|e| StudyError::Newton { level, source: Box::new(e) })?;
             Ok((field, info.n_velocity_dofs + info.n_pressure_dofs))
@@ -442,6 +428,18 @@ fn extrapolations(levels: &[LevelResult]) -> Vec<Extrapolation> {
         }
     }
     out
+}
+
+/// Least-squares slope of `log e` against `log h`: the observed convergence order of errors
+/// `e` at mesh sizes `h` (any number of levels ≥ 2).
+pub fn fitted_rate(h: &[f64], e: &[f64]) -> f64 {
+    let x: Vec<f64> = h.iter().map(|v| v.ln()).collect();
+    let y: Vec<f64> = e.iter().map(|v| v.ln()).collect();
+    let n = x.len() as f64;
+    let (mx, my) = (x.iter().sum::<f64>() / n, y.iter().sum::<f64>() / n);
+    let sxy: f64 = x.iter().zip(&y).map(|(a, b)| (a - mx) * (b - my)).sum();
+    let sxx: f64 = x.iter().map(|a| (a - mx).powi(2)).sum();
+    sxy / sxx
 }
 
 /// Observed order and extrapolated value from three levels with refinement ratio 2.

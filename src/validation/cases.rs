@@ -14,6 +14,7 @@ use crate::solver::{
     ImexParams, ImexStepper, NewtonParams, SolverParams, StokesProblem, UnsteadyProblem,
     solve_steady_navier_stokes,
 };
+use crate::study::fitted_rate;
 
 use super::{Level, Tolerance, ValidationError, ValidationRow, origin};
 
@@ -147,16 +148,6 @@ fn scales_of(case: &Case) -> ReferenceScales {
     }
 }
 
-fn stokes_problem(case: &Case) -> StokesProblem<'_> {
-    StokesProblem {
-        viscosity: case.fluid.kinematic_viscosity,
-        conditions: &case.conditions,
-        body_force: case.body_force.as_ref(),
-        viscous_form: case.model.viscous_form,
-        time: 0.0,
-    }
-}
-
 /// Volume-form drag and lift coefficients on the case's first force part, and the pressure
 /// difference, of `field` at one time.
 fn cylinder_quantities(
@@ -188,7 +179,7 @@ fn cylinder_steady(level: Level) -> Result<Vec<ValidationRow>, ValidationError> 
     let (mesh, _) = generate(&case.domain, &case.mesh)?;
     let (field, _) = solve_steady_navier_stokes(
         &mesh,
-        &stokes_problem(&case),
+        &StokesProblem::from_case(&case),
         &SolverParams::default(),
         &NewtonParams::default(),
     )?;
@@ -417,7 +408,7 @@ equations = "navier-stokes"
     for &n in levels {
         let mesh = rectangle([-0.5, -0.5], [1.0, 1.5], 3 * n, 4 * n, |_, _| [0.0, 0.0])?;
         let conditions = vec![case.conditions[0].clone(); 4];
-        let problem = StokesProblem { conditions: &conditions, ..stokes_problem(&case) };
+        let problem = StokesProblem { conditions: &conditions, ..StokesProblem::from_case(&case) };
         let (field, _) =
             solve_steady_navier_stokes(&mesh, &problem, &params, &NewtonParams::default())?;
         h.push(0.5 / n as f64);
@@ -462,17 +453,6 @@ equations = "navier-stokes"
             KOVASZNAY,
         ),
     ])
-}
-
-/// Least-squares slope of `log e` against `log h`.
-fn fitted_rate(h: &[f64], e: &[f64]) -> f64 {
-    let x: Vec<f64> = h.iter().map(|v| v.ln()).collect();
-    let y: Vec<f64> = e.iter().map(|v| v.ln()).collect();
-    let n = x.len() as f64;
-    let (mx, my) = (x.iter().sum::<f64>() / n, y.iter().sum::<f64>() / n);
-    let sxy: f64 = x.iter().zip(&y).map(|(a, b)| (a - mx) * (b - my)).sum();
-    let sxx: f64 = x.iter().map(|a| (a - mx).powi(2)).sum();
-    sxy / sxx
 }
 
 // ---------------------------------------------------------------------------------------
@@ -549,13 +529,10 @@ fn cavity(reynolds: f64, level: Level) -> Result<Vec<ValidationRow>, ValidationE
     let continuation = if reynolds < 500.0 { 0 } else { 3 };
     let case = Case::parse(&cavity_toml(reynolds, size, continuation), &origin(name))?;
     let (mesh, _) = generate(&case.domain, &case.mesh)?;
-    let newton = NewtonParams {
-        continuation_steps: case.model.nonlinear.continuation_steps,
-        ..NewtonParams::default()
-    };
+    let newton = NewtonParams::from_controls(&case.model.nonlinear);
     let (field, _) = solve_steady_navier_stokes(
         &mesh,
-        &stokes_problem(&case),
+        &StokesProblem::from_case(&case),
         &SolverParams::default(),
         &newton,
     )?;
