@@ -403,3 +403,20 @@ fn export_system_is_refused_for_a_navier_stokes_case() {
     assert!(stderr.contains("--export-system"), "{stderr}");
     assert!(!dir.path().join("s").exists());
 }
+
+#[test]
+fn validate_prints_a_table_with_sources_and_rejects_unknown_names() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = run_cli(dir.path(), &["validate", "kovasznay", "--quick", "--json", "v.json"]);
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    assert!(stdout.contains("velocity H1 rate") && stdout.contains("Kovasznay (1948)"), "{stdout}");
+    assert!(stdout.contains("3 passed, 0 failed"), "{stdout}");
+    let rows: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("v.json")).unwrap()).unwrap();
+    assert_eq!(rows.as_array().unwrap().len(), 3);
+    assert!(rows[0]["passed"].as_bool().unwrap());
+    let bad = run_cli(dir.path(), &["validate", "cylinder-3d"]);
+    assert_eq!(bad.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&bad.stderr).contains("cylinder-steady"));
+}
