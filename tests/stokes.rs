@@ -378,7 +378,7 @@ fn manufactured_solution_converges_at_taylor_hood_rates_on_jittered_meshes() {
 const OMEGA: f64 = 1.5 * std::f64::consts::PI;
 
 /// The root of sin(αω) = α near 0.5445 by Newton's method (converges in a few steps).
-fn dauge_exponent() -> f64 {
+pub(crate) fn dauge_exponent() -> f64 {
     let mut a: f64 = 0.54;
     for _ in 0..50 {
         let step = ((a * OMEGA).sin() - a) / (OMEGA * (a * OMEGA).cos() - 1.0);
@@ -418,7 +418,7 @@ fn verfurth_f(alpha: f64, theta: f64) -> ([f64; 2], [f64; 2]) {
     (f, df)
 }
 
-fn verfurth_u(alpha: f64, x: f64, y: f64) -> [f64; 2] {
+pub(crate) fn verfurth_u(alpha: f64, x: f64, y: f64) -> [f64; 2] {
     let (r, theta) = polar(x, y);
     let (f, _) = verfurth_f(alpha, theta);
     [r.powf(alpha) * f[0], r.powf(alpha) * f[1]]
@@ -437,7 +437,7 @@ fn verfurth_grad(alpha: f64, x: f64, y: f64) -> [[f64; 2]; 2] {
     [row(0), row(1)]
 }
 
-fn verfurth_p(alpha: f64, x: f64, y: f64) -> f64 {
+pub(crate) fn verfurth_p(alpha: f64, x: f64, y: f64) -> f64 {
     let (r, theta) = polar(x, y);
     let [_, d1, _, d3] = verfurth_psi(alpha, theta);
     -r.powf(alpha - 1.0) * ((1.0 + alpha).powi(2) * d1 + d3) / (1.0 - alpha)

@@ -39,7 +39,8 @@ impl ScalarExpr {
     /// it names another variable.
     pub fn parse(source: &str) -> Result<Self, ExprError> {
         check_unary_minus_before_power(source)?;
-        let compiled = exmex::parse::<f64>(source).map_err(|e| ExprError::Syntax {
+        let expanded = expand_exponent_literals(source);
+        let compiled = exmex::parse::<f64>(&expanded).map_err(|e| ExprError::Syntax {
             source_text: source.to_string(),
             reason: e.to_string(),
         })?;
@@ -98,6 +99,50 @@ impl ScalarExpr {
         }
         compiled.eval(&vars[..self.slots.len()]).unwrap_or(f64::NAN)
     }
+}
+
+/// Rewrites number literals with an exponent (`1e-3`, `2.5E+4`) as plain decimals, which is
+/// what exmex reads (it would take `1e-3` for `1e` minus 3 and fail); other text is unchanged.
+fn expand_exponent_literals(source: &str) -> String {
+    let chars: Vec<char> = source.chars().collect();
+    let mut out = String::with_capacity(source.len());
+    let mut i = 0;
+    while i < chars.len() {
+        let starts_number = (chars[i].is_ascii_digit() || chars[i] == '.')
+            && (i == 0 || !(chars[i - 1].is_alphanumeric() || chars[i - 1] == '_'));
+        if starts_number {
+            let mut j = i;
+            while j < chars.len() && (chars[j].is_ascii_digit() || chars[j] == '.') {
+                j += 1;
+            }
+            let mut k = j;
+            if k < chars.len() && (chars[k] == 'e' || chars[k] == 'E') {
+                k += 1;
+                if k < chars.len() && (chars[k] == '+' || chars[k] == '-') {
+                    k += 1;
+                }
+                let digits = k;
+                while k < chars.len() && chars[k].is_ascii_digit() {
+                    k += 1;
+                }
+                let literal: String = chars[i..k].iter().collect();
+                if k > digits
+                    && let Ok(value) = literal.parse::<f64>()
+                {
+                    // Display of f64 never uses an exponent and round-trips the value.
+                    out.push_str(&format!("{value}"));
+                    i = k;
+                    continue;
+                }
+            }
+            out.extend(&chars[i..j]);
+            i = j;
+            continue;
+        }
+        out.push(chars[i]);
+        i += 1;
+    }
+    out
 }
 
 /// Refuses a unary minus whose operand is raised to a power (`-x^2`, `exp(-(t/2)^2)`): exmex
@@ -202,6 +247,19 @@ mod tests {
         assert_eq!(ScalarExpr::parse("(-x)^2").unwrap().eval(3.0, 0.0, 0.0), 9.0);
         assert_eq!(ScalarExpr::parse("-x * 2").unwrap().eval(3.0, 0.0, 0.0), -6.0);
         assert_eq!(ScalarExpr::parse("exp(-(x^2))").unwrap().eval(0.0, 0.0, 0.0), 1.0);
+    }
+
+    #[test]
+    fn numbers_with_an_exponent_are_read_as_numbers() {
+        // exmex alone fails on `1e-3 + x`; the literal is expanded first.
+        let e = ScalarExpr::parse("1e-3 + x * 2.5E+1").unwrap();
+        assert_eq!(e.eval(2.0, 0.0, 0.0), 0.001 + 50.0);
+        assert_eq!(ScalarExpr::parse("exp(x) * 1e2").unwrap().eval(0.0, 0.0, 0.0), 100.0);
+        assert!(
+            (ScalarExpr::parse("signum(x + 1e-300)").unwrap().eval(0.0, 0.0, 0.0) - 1.0).abs()
+                == 0.0
+        );
+        assert_eq!(expand_exponent_literals("x2e3 + 3"), "x2e3 + 3");
     }
 
     #[test]

@@ -55,7 +55,9 @@ pub struct StudyArgs {
     /// triangle into four).
     #[arg(long, value_name = "N", default_value_t = 4)]
     pub levels: usize,
-    /// How the meshes are refined (only `uniform` so far).
+    /// How the meshes are made: `uniform` (nested, every triangle split into four) or `graded`
+    /// (meshed anew per level with the sizes halved and power-law grading toward every corner
+    /// that limits the P2 rate, from the corner analysis; needs an `[exact]` solution).
     #[arg(long, value_enum, default_value_t = RefineMode::Uniform)]
     pub refine: RefineMode,
     #[command(flatten)]
@@ -66,6 +68,7 @@ pub struct StudyArgs {
 #[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
 pub enum RefineMode {
     Uniform,
+    Graded,
 }
 
 #[derive(Debug, Args)]

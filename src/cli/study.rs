@@ -9,10 +9,10 @@ use std::path::Path;
 use anyhow::Context;
 use cornerflow::mesh::Mesh;
 use cornerflow::output::table::{write_csv, write_json};
-use cornerflow::study::{ErrorKind, StudyError, StudyParams, StudyReport, run_study};
+use cornerflow::study::{ErrorKind, Refinement, StudyError, StudyParams, StudyReport, run_study};
 use plotters::prelude::*;
 
-use super::args::StudyArgs;
+use super::args::{RefineMode, StudyArgs};
 use super::mesh::{cell_budget, mesh_case, output_dir};
 use super::progress::Stage;
 use super::run::{solve_error, write_field_vtu};
@@ -26,7 +26,8 @@ pub fn run(args: &StudyArgs) -> anyhow::Result<()> {
     }
     let out = output_dir(&case, &args.meshing);
     let (coarse, _) = mesh_case(&case, &args.meshing)?;
-    let stage = Stage::start("study", &format!("{} levels, uniform refinement", args.levels));
+    let stage =
+        Stage::start("study", &format!("{} levels, {:?} refinement", args.levels, args.refine));
     let mut write_error = None;
     let mut on_level = |level: usize, mesh: &Mesh, field: &cornerflow::fem::FlowField| {
         eprintln!("[study] level {level}: {} triangles solved", mesh.n_cells());
@@ -35,11 +36,22 @@ pub fn run(args: &StudyArgs) -> anyhow::Result<()> {
             write_error = write_field_vtu(&case, mesh, field, &path).err();
         }
     };
-    let params =
-        StudyParams { levels: args.levels, snap_to_circles: true, max_cells: cell_budget(&case) };
+    let refinement = match args.refine {
+        RefineMode::Uniform => Refinement::Uniform,
+        RefineMode::Graded => Refinement::Graded,
+    };
+    let params = StudyParams {
+        levels: args.levels,
+        refinement,
+        snap_to_circles: true,
+        max_cells: cell_budget(&case),
+    };
     let report = run_study(&case, coarse, &params, &mut on_level).map_err(|e| match e {
         StudyError::Solve { source, .. } => solve_error(&case, source),
-        StudyError::Unsteady | StudyError::TooFewLevels { .. } | StudyError::TooLarge { .. } => {
+        StudyError::Unsteady
+        | StudyError::TooFewLevels { .. }
+        | StudyError::TooLarge { .. }
+        | StudyError::GradedNeedsExact => {
             anyhow::Error::new(BadInput(format!("{}: {e}", case.source.display())))
         }
         e => anyhow::Error::new(e).context(format!("study of {}", case.source.display())),

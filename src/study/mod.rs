@@ -10,7 +10,7 @@
 //!
 //! **Errors.** With an `[exact]` solution: `‖u − u_h‖_{L²}`, `|u − u_h|_{H¹}` and
 //! `‖p − p_h‖_{L²}` (pressure up to a constant when the domain is closed; exact gradients by
-//! central differences of the expressions, step `1e-6 · max(1, |x|)`, whose error is far
+//! central differences of the expressions, step `1e-8 · max(1, |x|)`, whose error is far
 //! below the discretisation error). Without one: the same norms of `u_{ℓ+1} − u_ℓ`, where the
 //! coarse field is interpolated at the fine nodes — exact for nested meshes, since a P2 (P1)
 //! function on a triangle is P2 (P1) on each child — so the difference is a finite-element
@@ -44,11 +44,24 @@ use crate::solver::{
     solve_stokes,
 };
 
+/// How the meshes of a study are made.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Refinement {
+    /// Nested: every triangle of level `ℓ` split into four.
+    #[default]
+    Uniform,
+    /// Meshed anew per level with all sizes halved and the size law `h(r) = h_ℓ (r/R)^{1−μ}`
+    /// toward every corner whose predicted exponent limits the P2 rate (see [`graded_controls`]).
+    Graded,
+}
+
 /// Settings of a study.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct StudyParams {
     /// Number of meshes (≥ 2; 3 or more for rates between several pairs and Richardson).
     pub levels: usize,
+    pub refinement: Refinement,
     /// Snap new boundary midpoints to declared circles (default true).
     pub snap_to_circles: bool,
     /// Refuse a level with more triangles than this (a memory guard chosen by the caller).
@@ -148,6 +161,14 @@ pub enum StudyError {
     #[error("a study solves steady problems; this case has [model.time]")]
     Unsteady,
     #[error(
+        "a graded study compares with an exact solution (its meshes are not nested); give the case an [exact] table"
+    )]
+    GradedNeedsExact,
+    #[error("level {level}: {source}")]
+    Mesh { level: usize, source: crate::mesh::MeshError },
+    #[error(transparent)]
+    Corners(#[from] crate::corners::CornerError),
+    #[error(
         "level {level} would have {cells} triangles, more than the {cap} that fit in memory; use fewer levels or a coarser case mesh"
     )]
     TooLarge { level: usize, cells: usize, cap: usize },
@@ -179,6 +200,13 @@ pub fn run_study(
     }
     let error_kind =
         if case.exact.is_some() { ErrorKind::Exact } else { ErrorKind::NextLevelDifference };
+    if params.refinement == Refinement::Graded && case.exact.is_none() {
+        return Err(StudyError::GradedNeedsExact);
+    }
+    let corners = match params.refinement {
+        Refinement::Uniform => Vec::new(),
+        Refinement::Graded => grading_corners(case)?,
+    };
     let mut levels: Vec<LevelResult> = Vec::new();
     let mut previous: Option<(Mesh, FlowField)> = None;
     let finest = coarse.n_cells().saturating_mul(4usize.saturating_pow(params.levels as u32 - 1));
@@ -192,8 +220,15 @@ pub fn run_study(
     }
     let mut mesh = coarse;
     for level in 0..params.levels {
-        if level > 0 {
-            mesh = mesh.refine_uniform(params.snap_to_circles);
+        match params.refinement {
+            Refinement::Uniform if level > 0 => mesh = mesh.refine_uniform(params.snap_to_circles),
+            Refinement::Uniform => {}
+            Refinement::Graded => {
+                let controls = graded_controls(case, &corners, level);
+                mesh = crate::mesh::generate(&case.domain, &controls)
+                    .map_err(|source| StudyError::Mesh { level, source })?
+                    .0;
+            }
         }
         let clock = Instant::now();
         let (field, n_unknowns) = solve_level(case, &mesh, level)?;
@@ -218,6 +253,70 @@ pub fn run_study(
     let sobolev_index = rates.last().map(|r| r.in_h.velocity_h1.min(2.0));
     let extrapolations = extrapolations(&levels);
     Ok(StudyReport { error_kind, levels, rates, extrapolations, sobolev_index })
+}
+
+/// Location and grading exponent `μ = min(1, Re λ₁ / 2)` of every corner of the case whose
+/// leading exponent limits the P2 rate (`μ < 1`).
+fn grading_corners(case: &Case) -> Result<Vec<([f64; 2], f64)>, StudyError> {
+    let analysis = crate::corners::try_analyse_corners(
+        &case.domain,
+        &case.conditions,
+        case.model.viscous_form,
+        &crate::corners::AnalysisParams::default(),
+    )?;
+    Ok(analysis
+        .reports
+        .iter()
+        .filter(|r| r.grading_exponent.is_finite() && r.grading_exponent < 1.0)
+        .map(|r| (r.location, r.grading_exponent))
+        .collect())
+}
+
+/// Tangent lines of the grading law per corner (see [`graded_controls`]).
+const TANGENTS_PER_CORNER: usize = 10;
+/// The grading parameter used is this fraction of `μ` (the theory needs it strictly below).
+const GRADING_SAFETY: f64 = 0.9;
+/// Smallest size at a corner, relative to `R`: a practical floor so that the finest level
+/// stays meshable in double precision (the pure law asks for `R (h/R)^{1/μ}`).
+const CORNER_SIZE_FLOOR: f64 = 1e-5;
+
+/// Mesh controls of graded level `ℓ`: every size of the case divided by `2^ℓ`, and toward
+/// each corner with grading exponent `μ_c < 1` the law `h(r) = h_ℓ (r/R)^{1−μ}` with
+/// `μ = 0.9 μ_c`, `R = 4 h_0` and the floor `max(R (h_ℓ/R)^{1/μ}, 1e-5 R)` at the corner:
+/// the mesh family for which P2 regains its optimal rate when `μ < Re λ₁ / 2` (Babuška 1970;
+/// Apel, Sändig & Whiteman 1996; benchmarks.md §7.3, from memory). The mesher takes point
+/// gradings `h_min + g r`; the concave power law is represented by the lower envelope of its
+/// tangents at ten radii spaced geometrically between the floor radius and `R`. Tangents of a
+/// concave function lie above it, so the envelope is never finer than the law.
+pub fn graded_controls(
+    case: &Case,
+    corners: &[([f64; 2], f64)],
+    level: usize,
+) -> crate::mesh::MeshControls {
+    let scale = 0.5f64.powi(level as i32);
+    let mut controls = case.mesh.clone();
+    controls.max_triangles = usize::MAX;
+    let h0 = controls.size;
+    controls.size *= scale;
+    controls.part_sizes.iter_mut().flatten().for_each(|s| *s *= scale);
+    controls.grading.iter_mut().for_each(|g| g.h_min *= scale);
+    let radius = 4.0 * h0;
+    for &(point, mu_corner) in corners {
+        let mu = GRADING_SAFETY * mu_corner;
+        let h = controls.size;
+        let law = |r: f64| h * (r / radius).powf(1.0 - mu);
+        let floor = (radius * (h / radius).powf(1.0 / mu)).max(CORNER_SIZE_FLOOR * radius);
+        // Radius where the law meets the floor.
+        let r_floor = radius * (floor / h).powf(1.0 / (1.0 - mu));
+        for k in 0..TANGENTS_PER_CORNER {
+            let t = k as f64 / (TANGENTS_PER_CORNER - 1) as f64;
+            let r = r_floor * (radius / r_floor).powf(t);
+            let slope = (1.0 - mu) * law(r) / r;
+            let intercept = (law(r) - slope * r).max(floor);
+            controls.grading.push(crate::mesh::Grading { point, h_min: intercept, growth: slope });
+        }
+    }
+    controls
 }
 
 /// Solves the case's steady problem on `mesh`; returns the field and the unknown count.
@@ -295,12 +394,20 @@ fn part_coefficients(
     Ok(PartCoefficients { part: case.part_name(part).to_string(), drag: c.drag, lift: c.lift })
 }
 
+/// Step of the central differences of the exact solution. Small enough that no quadrature
+/// point of the smallest graded corner element (size ≥ 1e-5 R, quadrature points ≥ ~1e-6 from
+/// its edges) straddles the boundary — beyond which an exact formula may jump, e.g. across the
+/// branch cut of a polar angle — yet 1e8 times the round-off of O(1) values: truncation error
+/// `(δ/r)² |∇u| / 6` and round-off `ε |u| / δ` both below 1e-4 of the gradient (measured: with
+/// 1e-6 a graded L-shape study lost its rate to branch-cut crossings).
+const FD_STEP: f64 = 1e-8;
+
 /// Error norms against the case's exact solution (gradients by central differences).
 fn exact_norms(case: &Case, mesh: &Mesh, field: &FlowField) -> Norms {
     let exact = case.exact.as_ref().expect("called with an exact solution");
     let u = |x: f64, y: f64| [exact.u.eval(x, y, 0.0), exact.v.eval(x, y, 0.0)];
     let grad = |x: f64, y: f64| {
-        let (dx, dy) = (1e-6 * x.abs().max(1.0), 1e-6 * y.abs().max(1.0));
+        let (dx, dy) = (FD_STEP * x.abs().max(1.0), FD_STEP * y.abs().max(1.0));
         let (ux1, ux0) = (u(x + dx, y), u(x - dx, y));
         let (uy1, uy0) = (u(x, y + dy), u(x, y - dy));
         [
