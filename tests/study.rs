@@ -112,63 +112,8 @@ fn a_study_that_would_not_fit_in_memory_is_refused_before_solving() {
 // like N^{−α/2} ≈ N^{−0.27} in the velocity H¹ error; graded meshes with μ < α/2 recover
 // N^{−1} (benchmarks.md §7.2–7.3).
 
-/// The exact solution as case-file expressions (polar angle in [0, 2π) from `atan2`).
-fn verfurth_expressions(alpha: f64) -> [String; 3] {
-    let omega = 1.5 * std::f64::consts::PI;
-    let (c, p, m) = ((alpha * omega).cos(), 1.0 + alpha, 1.0 - alpha);
-    // Every number in parentheses: exmex does not accept `a - -b`.
-    let n = |v: f64| format!("({v:?})");
-    let th = "((y atan2 x) + PI * (1 - signum((y atan2 x) + 1e-300)))";
-    let (sp, cp) = (format!("sin({} * {th})", n(p)), format!("cos({} * {th})", n(p)));
-    let (sm, cm) = (format!("sin({} * {th})", n(m)), format!("cos({} * {th})", n(m)));
-    let psi = format!("({} * {sp} - {cp} - {} * {sm} + {cm})", n(c / p), n(c / m));
-    let d1 = format!("({} * {cp} + {} * {sp} - {} * {cm} - {} * {sm})", n(c), n(p), n(c), n(m));
-    let d3 = format!(
-        "({} * {cp} + {} * {sp} + {} * {cm} + {} * {sm})",
-        n(-p * p * c),
-        n(-p.powi(3)),
-        n(m * m * c),
-        n(m.powi(3))
-    );
-    let ra = format!("((x^2 + y^2)^{})", n(alpha / 2.0));
-    let u = format!("{ra} * ({} * sin({th}) * {psi} + cos({th}) * {d1})", n(p));
-    let v = format!("{ra} * (sin({th}) * {d1} - {} * cos({th}) * {psi})", n(p));
-    let pressure = format!(
-        "{} * ((x^2 + y^2)^{}) * ({} * {d1} + {d3})",
-        n(-1.0 / m),
-        n((alpha - 1.0) / 2.0),
-        n(p * p)
-    );
-    [u, v, pressure]
-}
-
 fn l_shape_case(size: f64) -> Case {
-    let alpha = crate::stokes::dauge_exponent();
-    let [u, v, p] = verfurth_expressions(alpha);
-    let text = format!(
-        r#"name = "l-shape"
-[fluid]
-density = 1.0
-kinematic_viscosity = 1.0
-reference_velocity = 1.0
-reference_length = 1.0
-[domain.outer]
-points = [[-1.0, -1.0], [0.0, -1.0], [0.0, 0.0], [1.0, 0.0], [1.0, 1.0], [-1.0, 1.0]]
-edge_parts = ["wall", "wall", "wall", "wall", "wall", "wall"]
-[conditions.wall]
-kind = "velocity"
-ux = "{u}"
-uy = "{v}"
-[exact]
-u = "{u}"
-v = "{v}"
-p = "{p}"
-[mesh]
-size = {size}
-[model]
-equations = "stokes"
-"#
-    );
+    let text = cornerflow::validation::l_shape_case_toml(size);
     Case::parse(&text, Path::new("<l-shape study>")).unwrap()
 }
 

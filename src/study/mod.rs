@@ -10,7 +10,7 @@
 //!
 //! **Errors.** With an `[exact]` solution: `‖u − u_h‖_{L²}`, `|u − u_h|_{H¹}` and
 //! `‖p − p_h‖_{L²}` (pressure up to a constant when the domain is closed; exact gradients by
-//! central differences of the expressions, step `1e-8 · max(1, |x|)`, whose error is far
+//! central differences of the expressions, step `1e-9 · max(1, |x|)`, whose error is far
 //! below the discretisation error). Without one: the same norms of `u_{ℓ+1} − u_ℓ`, where the
 //! coarse field is interpolated at the fine nodes — exact for nested meshes, since a P2 (P1)
 //! function on a triangle is P2 (P1) on each child — so the difference is a finite-element
@@ -278,11 +278,11 @@ const TANGENTS_PER_CORNER: usize = 10;
 const GRADING_SAFETY: f64 = 0.9;
 /// Smallest size at a corner, relative to `R`: a practical floor so that the finest level
 /// stays meshable in double precision (the pure law asks for `R (h/R)^{1/μ}`).
-const CORNER_SIZE_FLOOR: f64 = 1e-5;
+const CORNER_SIZE_FLOOR: f64 = 1e-7;
 
 /// Mesh controls of graded level `ℓ`: every size of the case divided by `2^ℓ`, and toward
 /// each corner with grading exponent `μ_c < 1` the law `h(r) = h_ℓ (r/R)^{1−μ}` with
-/// `μ = 0.9 μ_c`, `R = 4 h_0` and the floor `max(R (h_ℓ/R)^{1/μ}, 1e-5 R)` at the corner:
+/// `μ = 0.9 μ_c`, `R = 4 h_0` and the floor `max(R (h_ℓ/R)^{1/μ}, 1e-7 R)` at the corner:
 /// the mesh family for which P2 regains its optimal rate when `μ < Re λ₁ / 2` (Babuška 1970;
 /// Apel, Sändig & Whiteman 1996; benchmarks.md §7.3, from memory). The mesher takes point
 /// gradings `h_min + g r`; the concave power law is represented by the lower envelope of its
@@ -394,13 +394,13 @@ fn part_coefficients(
     Ok(PartCoefficients { part: case.part_name(part).to_string(), drag: c.drag, lift: c.lift })
 }
 
-/// Step of the central differences of the exact solution. Small enough that no quadrature
-/// point of the smallest graded corner element (size ≥ 1e-5 R, quadrature points ≥ ~1e-6 from
-/// its edges) straddles the boundary — beyond which an exact formula may jump, e.g. across the
-/// branch cut of a polar angle — yet 1e8 times the round-off of O(1) values: truncation error
-/// `(δ/r)² |∇u| / 6` and round-off `ε |u| / δ` both below 1e-4 of the gradient (measured: with
-/// 1e-6 a graded L-shape study lost its rate to branch-cut crossings).
-const FD_STEP: f64 = 1e-8;
+/// Step of the central differences of the exact solution. Small enough that no difference
+/// stencil around a quadrature point of the smallest graded corner element (size ≥ 1e-7 R,
+/// degree-6 points ≥ about 5e-9 R from its edges) straddles the boundary — beyond which an
+/// exact formula may jump, e.g. across the branch cut of a polar angle — while the round-off
+/// `ε |u| / δ` stays near 1e-7 of O(1) gradients, far below the errors a study measures
+/// (measured: with 1e-6 a graded L-shape study lost its rate to branch-cut crossings).
+const FD_STEP: f64 = 1e-9;
 
 /// Error norms against the case's exact solution (gradients by central differences).
 fn exact_norms(case: &Case, mesh: &Mesh, field: &FlowField) -> Norms {

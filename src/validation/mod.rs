@@ -12,6 +12,8 @@
 //!   are the reference, the tolerance is the issue's; the interval is also printed).
 //! * `cylinder-inflow`: 2D-3, time-dependent inflow; John (2004).
 //! * `kovasznay`: Kovasznay (1948) exact solution, observed Taylor–Hood rates.
+//! * `l-shape`: Verfürth's exact singular solution on the L-shaped domain; uniform rate
+//!   against the corner exponent (Dauge 1989), graded rate against the optimal one.
 //! * `cavity-100`, `cavity-1000`: lid-driven cavity (unregularised lid u = 1, as in the
 //!   references), centreline velocities of Ghia, Ghia & Shin (1982); at Re = 1000 also the
 //!   primary-vortex stream function of Botella & Peyret (1998).
@@ -22,7 +24,7 @@ mod cases;
 
 use std::path::Path;
 
-pub use cases::{CASE_NAMES, run_case};
+pub use cases::{CASE_NAMES, dauge_exponent, l_shape_case_toml, run_case};
 
 use crate::case::CaseError;
 use crate::mesh::MeshError;
