@@ -14,6 +14,7 @@ use cornerflow::solver::{
     BoundaryConstraints, SolveError, SolveInfo, SolverKind, SolverParams, StokesProblem,
     SymbolicSystem, assemble_stokes, expand_field, solve_stokes, stokes_dof_map, velocity_coupling,
 };
+use cornerflow::study::fitted_rate;
 
 // ---------------------------------------------------------------------------------------
 // Helpers
@@ -98,17 +99,6 @@ fn edge_point_bary(mesh: &Mesh, cell: usize, a: usize, b: usize, s: f64) -> [f64
         }
     }
     l
-}
-
-/// Least-squares slope of `log e` against `log h` (the observed convergence order).
-fn fitted_rate(h: &[f64], e: &[f64]) -> f64 {
-    let x: Vec<f64> = h.iter().map(|v| v.ln()).collect();
-    let y: Vec<f64> = e.iter().map(|v| v.ln()).collect();
-    let n = x.len() as f64;
-    let (mx, my) = (x.iter().sum::<f64>() / n, y.iter().sum::<f64>() / n);
-    let sxy: f64 = x.iter().zip(&y).map(|(a, b)| (a - mx) * (b - my)).sum();
-    let sxx: f64 = x.iter().map(|a| (a - mx).powi(2)).sum();
-    sxy / sxx
 }
 
 fn mean_pressure(mesh: &Mesh, field: &FlowField) -> f64 {
