@@ -42,6 +42,10 @@ pub struct CheckArgs {
     /// Write (or overwrite) the baseline from this run, with default tolerances.
     #[arg(long)]
     pub update: bool,
+    /// Also run a uniform convergence study with this many levels (≥ 2) and check its last
+    /// observed rates and Richardson-extrapolated forces (steady cases).
+    #[arg(long, value_name = "N")]
+    pub study_levels: Option<usize>,
     #[command(flatten)]
     pub meshing: MeshingOptions,
 }

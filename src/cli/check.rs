@@ -1,8 +1,9 @@
 //! `cornerflow check CASE.toml --baseline FILE.json [--update]`: runs the case like `run`
 //! (writing the usual files), collects its quantities from the run summary — forces by both
 //! formulas, the pressure difference, predicted and fitted corner exponents, and for a
-//! time-dependent case the maxima of the coefficients and the Strouhal number — and compares
-//! them with the baseline. Exit codes: 0 all hold, 1 a regression (or a quantity missing), 2
+//! time-dependent case the maxima of the coefficients and the Strouhal number; with
+//! `--study-levels N` also the observed rates and extrapolated forces of a uniform study — and
+//! compares them with the baseline. Exit codes: 0 all hold, 1 a regression (or a quantity missing), 2
 //! bad input (case or baseline file).
 
 use std::path::Path;
@@ -34,7 +35,10 @@ pub fn run(args: &CheckArgs) -> anyhow::Result<()> {
         .with_context(|| format!("reading the run summary {}", summary_path.display()))?;
     let summary: Value = serde_json::from_str(&text)
         .with_context(|| format!("parsing the run summary {}", summary_path.display()))?;
-    let current = quantities(&summary);
+    let mut current = quantities(&summary);
+    if let Some(levels) = args.study_levels {
+        current.extend(study_quantities(&case, args, levels)?);
+    }
     match baseline {
         None => {
             let fresh = Baseline::from_current(&case.name, &current);
@@ -111,6 +115,50 @@ fn quantities(summary: &Value) -> Vec<Quantity> {
         push(format!("corner.{k}.fitted"), &m["fitted"]);
     }
     out
+}
+
+/// Runs a uniform study and returns `study.rate.{u_l2,u_h1,p_l2}` (last pair, in h),
+/// `study.sobolev_index` and `study.<part>.<drag|lift>_extrapolated`.
+fn study_quantities(
+    case: &cornerflow::case::Case,
+    args: &CheckArgs,
+    levels: usize,
+) -> anyhow::Result<Vec<Quantity>> {
+    use cornerflow::study::{Refinement, StudyParams, run_study};
+    if levels < 2 {
+        return Err(anyhow::Error::new(BadInput("--study-levels must be at least 2".into())));
+    }
+    let (coarse, _) = super::mesh::mesh_case(case, &args.meshing)?;
+    let params = StudyParams {
+        levels,
+        refinement: Refinement::Uniform,
+        snap_to_circles: true,
+        max_cells: super::mesh::cell_budget(case),
+    };
+    let report = run_study(case, coarse, &params, &mut |_, _, _| {})
+        .with_context(|| format!("study of {}", case.source.display()))?;
+    let mut out = Vec::new();
+    if let Some(r) = report.rates.last() {
+        for (name, value) in [
+            ("u_l2", r.in_h.velocity_l2),
+            ("u_h1", r.in_h.velocity_h1),
+            ("p_l2", r.in_h.pressure_l2),
+        ] {
+            out.push(Quantity { name: format!("study.rate.{name}"), value });
+        }
+    }
+    if let Some(s) = report.sobolev_index {
+        out.push(Quantity { name: "study.sobolev_index".into(), value: s });
+    }
+    for x in &report.extrapolations {
+        if let Some(value) = x.extrapolated {
+            out.push(Quantity {
+                name: format!("study.{}.{}_extrapolated", x.part, x.quantity),
+                value,
+            });
+        }
+    }
+    Ok(out)
 }
 
 fn print_rows(rows: &[CheckRow]) {

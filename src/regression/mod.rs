@@ -81,12 +81,15 @@ pub enum CheckStatus {
     New,
 }
 
-/// Default tolerances by kind of quantity (common practice, no source): predicted
-/// exponents are computed to 1e-10, so `1e-8` absolute; fitted exponents depend on the fit
-/// window, `0.01` absolute; everything else (forces, Strouhal numbers, pressure
+/// Default tolerances by kind of quantity (common practice, no source): observed study rates
+/// `0.05` absolute; predicted exponents are computed to 1e-10, so `1e-8` absolute; fitted
+/// exponents depend on the fit window, `0.01` absolute; everything else (forces, Strouhal numbers, pressure
 /// differences) `1e-4` relative, far above run-to-run round-off and far below a real change.
 pub fn default_tolerance(name: &str) -> CheckTolerance {
-    if name.ends_with(".predicted") {
+    if name.starts_with("study.rate.") || name == "study.sobolev_index" {
+        // Observed rates move with the fit window, like fitted exponents.
+        CheckTolerance::Absolute(0.05)
+    } else if name.ends_with(".predicted") {
         CheckTolerance::Absolute(1e-8)
     } else if name.ends_with(".fitted") {
         CheckTolerance::Absolute(0.01)
@@ -189,6 +192,14 @@ mod tests {
             q("corner.1.predicted", 0.5444837),
             q("corner.1.fitted", 0.555),
         ])));
+    }
+
+    #[test]
+    fn study_rates_get_an_absolute_tolerance_of_a_twentieth() {
+        assert_eq!(default_tolerance("study.rate.u_h1"), CheckTolerance::Absolute(0.05));
+        assert_eq!(default_tolerance("study.sobolev_index"), CheckTolerance::Absolute(0.05));
+        let drag = "study.body.drag_extrapolated";
+        assert_eq!(default_tolerance(drag), CheckTolerance::Relative(1e-4));
     }
 
     #[test]
