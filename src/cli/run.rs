@@ -20,7 +20,7 @@ use cornerflow::output::vtu::{
 use cornerflow::post::{self, FluidProperties, ReferenceScales, VolumeForceTerms, WallReference};
 use cornerflow::solver::{
     NewtonError, NewtonInfo, NewtonParams, SolveError, SolveInfo, SolverKind, SolverParams,
-    StokesProblem, solve_steady_navier_stokes, solve_stokes,
+    StageTimings, StokesProblem, solve_steady_navier_stokes, solve_stokes,
 };
 use serde_json::{Value, json};
 
@@ -178,7 +178,6 @@ fn solve_steady_navier_stokes_stage(
 }
 
 fn newton_json(info: &NewtonInfo) -> Value {
-    let t = &info.timings;
     json!({
         "method": "newton",
         "velocity_dofs": info.n_velocity_dofs,
@@ -187,13 +186,18 @@ fn newton_json(info: &NewtonInfo) -> Value {
         "iterations": info.iterations,
         "final_relative_residual": info.final_residual,
         "pressure_fixed_to_zero_mean": info.pressure_fixed,
-        "timings_s": {
-            "pattern": t.pattern.as_secs_f64(),
-            "assembly": t.assembly.as_secs_f64(),
-            "symbolic": t.symbolic.as_secs_f64(),
-            "numeric": t.numeric.as_secs_f64(),
-            "solve": t.solve.as_secs_f64(),
-        },
+        "timings_s": timings_json(&info.timings),
+    })
+}
+
+/// Stage times of a solve in seconds.
+fn timings_json(t: &StageTimings) -> Value {
+    json!({
+        "pattern": t.pattern.as_secs_f64(),
+        "assembly": t.assembly.as_secs_f64(),
+        "symbolic": t.symbolic.as_secs_f64(),
+        "numeric": t.numeric.as_secs_f64(),
+        "solve": t.solve.as_secs_f64(),
     })
 }
 
@@ -251,14 +255,6 @@ pub fn solve_error(case: &Case, err: SolveError) -> anyhow::Error {
     }
 }
 
-pub fn fluid(case: &Case) -> FluidProperties {
-    FluidProperties {
-        density: case.fluid.density,
-        viscosity: case.fluid.kinematic_viscosity,
-        form: case.model.viscous_form,
-    }
-}
-
 /// Forces on every reported part by both formulas, with coefficients; writes the wall
 /// distribution of each part as CSV.
 fn report_forces(
@@ -269,14 +265,11 @@ fn report_forces(
     out: &Path,
 ) -> anyhow::Result<Value> {
     let stage = Stage::start("forces", "surface traction and weak-residual forces");
-    let fluid = fluid(case);
-    let scales = reference_scales(case);
-    let body_force = case
-        .body_force
-        .as_ref()
-        .map(|[fx, fy]| move |p: [f64; 2]| [fx.eval(p[0], p[1], 0.0), fy.eval(p[0], p[1], 0.0)]);
+    let fluid = FluidProperties::of_case(case);
+    let scales = ReferenceScales::of_case(case);
+    let body_force = post::case_body_force(case, 0.0);
     let terms = VolumeForceTerms {
-        body_force: body_force.as_ref().map(|f| f as &(dyn Fn([f64; 2]) -> [f64; 2] + Sync)),
+        body_force: body_force.as_deref(),
         convecting_velocity: convecting,
         ..VolumeForceTerms::default()
     };
@@ -316,15 +309,6 @@ fn report_forces(
     }
     stage.done(&format!("{} part(s)", parts.len()));
     Ok(Value::Array(parts))
-}
-
-/// The coefficient scales of a case.
-pub fn reference_scales(case: &Case) -> ReferenceScales {
-    ReferenceScales {
-        density: case.fluid.density,
-        velocity: case.fluid.reference_velocity,
-        length: case.fluid.reference_length,
-    }
 }
 
 fn write_solution(case: &Case, mesh: &Mesh, field: &FlowField, out: &Path) -> anyhow::Result<()> {
@@ -412,7 +396,6 @@ pub fn mesh_json(stats: &cornerflow::mesh::MeshStats) -> Value {
 }
 
 fn solver_json(info: &SolveInfo) -> Value {
-    let t = &info.timings;
     json!({
         "velocity_dofs": info.n_velocity_dofs,
         "pressure_dofs": info.n_pressure_dofs,
@@ -420,13 +403,7 @@ fn solver_json(info: &SolveInfo) -> Value {
         "relative_residual": info.relative_residual,
         "refinement_steps": info.refinement_steps,
         "pressure_fixed_to_zero_mean": info.pressure_fixed,
-        "timings_s": {
-            "pattern": t.pattern.as_secs_f64(),
-            "assembly": t.assembly.as_secs_f64(),
-            "symbolic": t.symbolic.as_secs_f64(),
-            "numeric": t.numeric.as_secs_f64(),
-            "solve": t.solve.as_secs_f64(),
-        },
+        "timings_s": timings_json(&info.timings),
     })
 }
 

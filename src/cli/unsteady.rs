@@ -26,7 +26,10 @@ use cornerflow::corners::CornerAnalysis;
 use cornerflow::mesh::{Mesh, MeshStats};
 use cornerflow::output::table::{write_csv, write_json};
 use cornerflow::output::vtu::write_pvd;
-use cornerflow::post::{self, PointLocator, VolumeForceTerms, signal_stats, strouhal_number};
+use cornerflow::post::{
+    self, FluidProperties, PointLocator, ReferenceScales, VolumeForceTerms, signal_stats,
+    strouhal_number,
+};
 use cornerflow::solver::{ImexParams, ImexStepper, SolverParams, StepError, UnsteadyProblem};
 use indicatif::{ProgressBar, ProgressStyle};
 use serde_json::{Value, json};
@@ -34,8 +37,7 @@ use serde_json::{Value, json};
 use super::args::RunArgs;
 use super::progress::Stage;
 use super::run::{
-    fluid, mesh_json, model_name, peak_memory_bytes, reference_scales, solve_error, solver_kind,
-    write_field_vtu,
+    mesh_json, model_name, peak_memory_bytes, solve_error, solver_kind, write_field_vtu,
 };
 
 /// What the steady part of `run` has prepared for the time loop.
@@ -217,15 +219,12 @@ impl<'a> History<'a> {
     ) -> anyhow::Result<()> {
         let clock = Instant::now();
         let (field, t) = (stepper.field(), stepper.time());
-        let fluid = fluid(case);
-        let scales = reference_scales(case);
-        let body_force = case
-            .body_force
-            .as_ref()
-            .map(|[fx, fy]| move |p: [f64; 2]| [fx.eval(p[0], p[1], t), fy.eval(p[0], p[1], t)]);
+        let fluid = FluidProperties::of_case(case);
+        let scales = ReferenceScales::of_case(case);
+        let body_force = post::case_body_force(case, t);
         let convection = case.model.equations == Equations::NavierStokes;
         let terms = VolumeForceTerms {
-            body_force: body_force.as_ref().map(|f| f as &(dyn Fn([f64; 2]) -> [f64; 2] + Sync)),
+            body_force: body_force.as_deref(),
             convecting_velocity: convection.then_some(&field.velocity[..]),
             time_derivative: Some(stepper.time_derivative()),
             ..VolumeForceTerms::default()

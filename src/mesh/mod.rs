@@ -175,6 +175,13 @@ impl Mesh {
         [self.nodes[t[0]], self.nodes[t[1]], self.nodes[t[2]]]
     }
 
+    /// Length of the longest edge of cell `c` (its diameter).
+    pub fn longest_edge(&self, c: usize) -> f64 {
+        let [a, b, d] = self.cell_vertices(c);
+        let len = |p: Point, q: Point| (p[0] - q[0]).hypot(p[1] - q[1]);
+        len(a, b).max(len(b, d)).max(len(d, a))
+    }
+
     /// Total area of the triangles (straight-sided).
     pub fn area(&self) -> f64 {
         (0..self.cells.len())

@@ -114,6 +114,27 @@ pub struct ReferenceScales {
     pub length: f64,
 }
 
+impl ReferenceScales {
+    /// The density and the reference velocity and length of a case.
+    pub fn of_case(case: &crate::case::Case) -> Self {
+        ReferenceScales {
+            density: case.fluid.density,
+            velocity: case.fluid.reference_velocity,
+            length: case.fluid.reference_length,
+        }
+    }
+}
+
+/// A case's body force at time `t` as the closure [`VolumeForceTerms::body_force`] takes
+/// (use `.as_deref()`), or `None` when the case has none.
+pub fn case_body_force(
+    case: &crate::case::Case,
+    t: f64,
+) -> Option<Box<dyn Fn(Point) -> [f64; 2] + Sync + '_>> {
+    let [fx, fy] = case.body_force.as_ref()?;
+    Some(Box::new(move |p: Point| [fx.eval(p[0], p[1], t), fy.eval(p[0], p[1], t)]))
+}
+
 /// Drag and lift coefficients: drag is the `+x` component, lift the `+y` component of the
 /// force (align the mesh with the free stream, or rotate the force, to get wind axes).
 #[derive(Clone, Debug, PartialEq, serde::Serialize)]

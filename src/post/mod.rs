@@ -40,8 +40,8 @@ pub use fields::{
     DerivedFields, derived_fields, divergence_error, pressure_at_nodes, speed, vorticity,
 };
 pub use forces::{
-    EndNodeRule, Force, ForceCoefficients, ReferenceScales, VolumeForceTerms, coefficients,
-    surface_force, surface_force_on_parts, volume_force, volume_force_on_parts,
+    EndNodeRule, Force, ForceCoefficients, ReferenceScales, VolumeForceTerms, case_body_force,
+    coefficients, surface_force, surface_force_on_parts, volume_force, volume_force_on_parts,
 };
 pub use probe::{PointLocator, PointValue, evaluate_in_cell, locate};
 pub use series::{
@@ -64,6 +64,17 @@ pub struct FluidProperties {
     pub viscosity: f64,
     /// Which viscous stress enters the traction: `ν ∇u` or `2ν ε(u)`.
     pub form: ViscousForm,
+}
+
+impl FluidProperties {
+    /// The density, kinematic viscosity and viscous form of a case.
+    pub fn of_case(case: &crate::case::Case) -> Self {
+        FluidProperties {
+            density: case.fluid.density,
+            viscosity: case.fluid.kinematic_viscosity,
+            form: case.model.viscous_form,
+        }
+    }
 }
 
 /// Errors of the post-processing stage.

@@ -77,12 +77,13 @@ impl<'a> StokesProblem<'a> {
     }
 }
 
-/// The body force `f(x, y)` at time `time` as a closure for the element kernels, or `None`.
-pub(crate) fn body_force_at(
-    force: Option<&[ScalarExpr; 2]>,
-    time: f64,
-) -> Option<impl Fn(f64, f64) -> [f64; 2] + Sync + '_> {
-    force.map(move |[fx, fy]| move |x: f64, y: f64| [fx.eval(x, y, time), fy.eval(x, y, time)])
+/// The body force `f(x, y)` at time `time` as the closure the element kernels take (use
+/// `.as_deref()`), or `None`. Boxed once per assembly, not per element.
+pub(crate) type BodyForce<'a> = Box<dyn Fn(f64, f64) -> [f64; 2] + Sync + 'a>;
+
+pub(crate) fn body_force_at(force: Option<&[ScalarExpr; 2]>, time: f64) -> Option<BodyForce<'_>> {
+    let [fx, fy] = force?;
+    Some(Box::new(move |x: f64, y: f64| [fx.eval(x, y, time), fy.eval(x, y, time)]))
 }
 
 /// Solver settings. Defaults: `LDLᵀ`, dynamic regularisation, rayon assembly, sequential
@@ -348,8 +349,7 @@ pub fn assemble_stokes_into(
     system: &mut AssembledSystem,
 ) -> Result<(), SolveError> {
     let force_closure = body_force_at(problem.body_force, problem.time);
-    let force: Option<&(dyn Fn(f64, f64) -> [f64; 2] + Sync)> =
-        force_closure.as_ref().map(|f| f as &(dyn Fn(f64, f64) -> [f64; 2] + Sync));
+    let force = force_closure.as_deref();
     assemble_into(pattern, mesh, parallelism, system, |cell, local| {
         let tri = AffineTriangle::new(mesh.cell_vertices(cell));
         stokes_local_system(&tri, problem.viscosity, problem.viscous_form, force, local);

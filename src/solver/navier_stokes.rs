@@ -27,7 +27,7 @@
 //! Elements and Fast Iterative Solvers*, 2nd ed., OUP 2014, ch. 8 (the same, and the relative
 //! residual stopping test; from memory).
 
-use std::time::{Duration, Instant};
+use std::time::Instant;
 
 use crate::fem::FlowField;
 use crate::fem::assembly::{AssembledSystem, Parallelism, SystemPattern, assemble_into};
@@ -37,7 +37,7 @@ use crate::fem::shape::AffineTriangle;
 use crate::mesh::Mesh;
 
 use super::linear::{LinearParams, NumericFactor, SolverKind, SymbolicSystem};
-use super::{SolveError, SolverParams, StokesProblem, build_pattern, expand_field};
+use super::{SolveError, SolverParams, StageTimings, StokesProblem, build_pattern, expand_field};
 
 /// Settings of the nonlinear iteration. Defaults: no Picard steps, at most 30 iterations,
 /// residual tolerance `1e-10`, no continuation (intermediate tolerance `1e-4`).
@@ -99,16 +99,6 @@ pub struct NewtonIteration {
     pub update: f64,
 }
 
-/// Wall-clock time of the stages, summed over the iterations.
-#[derive(Clone, Copy, Debug, Default, PartialEq)]
-pub struct NewtonTimings {
-    pub pattern: Duration,
-    pub assembly: Duration,
-    pub symbolic: Duration,
-    pub numeric: Duration,
-    pub solve: Duration,
-}
-
 /// What a steady Navier–Stokes solve did.
 #[derive(Clone, Debug, PartialEq)]
 pub struct NewtonInfo {
@@ -119,7 +109,8 @@ pub struct NewtonInfo {
     pub iterations: Vec<NewtonIteration>,
     /// Relative residual `‖R‖ / ‖b₀‖` of the returned field.
     pub final_residual: f64,
-    pub timings: NewtonTimings,
+    /// Stage times summed over the iterations (`solve` includes refinement).
+    pub timings: StageTimings,
     pub pressure_fixed: bool,
 }
 
@@ -171,7 +162,7 @@ pub fn solve_steady_navier_stokes(
     params: &SolverParams,
     newton: &NewtonParams,
 ) -> Result<(FlowField, NewtonInfo), NewtonError> {
-    let mut timings = NewtonTimings::default();
+    let mut timings = StageTimings::default();
     let start = Instant::now();
     let (pattern, _flux) = build_pattern(mesh, problem, params)?;
     timings.pattern = start.elapsed();
@@ -199,7 +190,7 @@ pub fn solve_steady_navier_stokes(
         nnz: pattern.nnz(),
         iterations: Vec::new(),
         final_residual: f64::NAN,
-        timings: NewtonTimings::default(),
+        timings: StageTimings::default(),
         pressure_fixed: pattern.dofs().pinned_pressure().is_some(),
     };
     let schedule = viscosity_schedule(problem.viscosity, newton);
@@ -257,7 +248,7 @@ struct NewtonSolver<'a> {
     parallelism: Parallelism,
     system: AssembledSystem,
     factor: Option<NumericFactor>,
-    timings: NewtonTimings,
+    timings: StageTimings,
 }
 
 impl NewtonSolver<'_> {
@@ -271,8 +262,7 @@ impl NewtonSolver<'_> {
         let start = Instant::now();
         let (mesh, problem) = (self.mesh, self.problem);
         let force_closure = super::body_force_at(problem.body_force, problem.time);
-        let force: Option<&(dyn Fn(f64, f64) -> [f64; 2] + Sync)> =
-            force_closure.as_ref().map(|f| f as &(dyn Fn(f64, f64) -> [f64; 2] + Sync));
+        let force = force_closure.as_deref();
         assemble_into(self.pattern, mesh, self.parallelism, &mut self.system, |cell, local| {
             let tri = AffineTriangle::new(mesh.cell_vertices(cell));
             stokes_local_system(&tri, viscosity, problem.viscous_form, force, local);

@@ -44,7 +44,7 @@ use crate::fem::shape::AffineTriangle;
 use crate::fem::{FlowField, ViscousForm};
 use crate::mesh::Mesh;
 
-use super::linear::{LinearParams, NumericFactor, SolverKind, SymbolicSystem};
+use super::linear::{LinearParams, NumericFactor, SymbolicSystem};
 use super::{
     SolveError, SolverParams, StokesProblem, build_pattern, expand_field, resolve_boundary,
 };
@@ -236,17 +236,10 @@ impl<'a> ImexStepper<'a> {
             time: 0.0,
         };
         let (pattern, _) = build_pattern(mesh, &stokes, &params.solver)?;
-        let linear = LinearParams {
-            kind: if params.solver.kind == SolverKind::Lu {
-                SolverKind::Lu
-            } else {
-                SolverKind::Ldlt
-            },
-            ..params.solver.linear()
-        };
+        let linear = params.solver.linear();
         let symbolic = SymbolicSystem::analyse(&pattern, linear.kind)?;
         let matrix = super::assemble_stokes(&pattern, mesh, &stokes, params.solver.parallelism)?;
-        let (current, mut factor) = match initial {
+        let (current, factor) = match initial {
             Some(field) => (field, NumericFactor::placeholder()),
             None => {
                 let factor = symbolic.factorize(&pattern, &matrix.values, &linear)?;
@@ -262,7 +255,7 @@ impl<'a> ImexStepper<'a> {
                 pattern.dofs().cell_dofs(c).iter().any(|d| matches!(d, ComponentDof::Fixed(_)))
             })
             .collect();
-        let cell_diameter = (0..mesh.n_cells()).map(|c| longest_edge(mesh, c)).collect();
+        let cell_diameter = (0..mesh.n_cells()).map(|c| mesh.longest_edge(c)).collect();
         let mut stepper = ImexStepper {
             mesh,
             problem,
@@ -270,7 +263,7 @@ impl<'a> ImexStepper<'a> {
             pattern,
             symbolic,
             linear,
-            factor: NumericFactor::placeholder(),
+            factor,
             matrix,
             factored_order: 0,
             cell_has_fixed,
@@ -284,8 +277,7 @@ impl<'a> ImexStepper<'a> {
             buffer: Vec::new(),
             timings: StepTimings::default(),
         };
-        stepper.factor_step_matrix(1, &mut factor)?;
-        stepper.factor = factor;
+        stepper.factor_step_matrix(1)?;
         stepper.timings.setup = start.elapsed();
         Ok(stepper)
     }
@@ -332,10 +324,7 @@ impl<'a> ImexStepper<'a> {
         let order = if self.step == 0 { 1 } else { 2 };
         if order != self.factored_order {
             let start = Instant::now();
-            let mut factor = std::mem::replace(&mut self.factor, NumericFactor::placeholder());
-            let result = self.factor_step_matrix(order, &mut factor);
-            self.factor = factor;
-            result?;
+            self.factor_step_matrix(order)?;
             self.timings.setup += start.elapsed();
         }
         let time = self.time + self.params.dt;
@@ -374,12 +363,9 @@ impl<'a> ImexStepper<'a> {
         Ok(info)
     }
 
-    /// Assembles and factorises the step matrix of BDF `order` into `factor`.
-    fn factor_step_matrix(
-        &mut self,
-        order: usize,
-        factor: &mut NumericFactor,
-    ) -> Result<(), SolveError> {
+    /// Assembles the step matrix of BDF `order` and factorises it into the stepper's factor
+    /// storage (that of the start-up Stokes solve, when there was one).
+    fn factor_step_matrix(&mut self, order: usize) -> Result<(), SolveError> {
         let (a0, _, _) = bdf_coefficients(order, self.params.dt);
         let (mesh, problem) = (self.mesh, self.problem);
         assemble_into(
@@ -392,7 +378,8 @@ impl<'a> ImexStepper<'a> {
         if self.matrix.dropped_entries > 0 {
             return Err(SolveError::PatternMismatch { dropped: self.matrix.dropped_entries });
         }
-        self.symbolic.refactorize(&self.pattern, &self.matrix.values, &self.linear, factor)?;
+        let values = &self.matrix.values;
+        self.symbolic.refactorize(&self.pattern, values, &self.linear, &mut self.factor)?;
         self.factored_order = order;
         Ok(())
     }
@@ -408,8 +395,7 @@ impl<'a> ImexStepper<'a> {
         let (mesh, problem, pattern) = (self.mesh, self.problem, &self.pattern);
         let has_fixed = &self.cell_has_fixed;
         let force_closure = super::body_force_at(problem.body_force, time);
-        let force: Option<&(dyn Fn(f64, f64) -> [f64; 2] + Sync)> =
-            force_closure.as_ref().map(|f| f as &(dyn Fn(f64, f64) -> [f64; 2] + Sync));
+        let force = force_closure.as_deref();
         let combine = |nodes: &[usize; 6], s1: f64, s2: f64| -> [[f64; 2]; 6] {
             std::array::from_fn(|k| {
                 let (u, v) = (current[nodes[k]], previous[nodes[k]]);
@@ -523,12 +509,6 @@ fn lift_fixed_values(
             }
         }
     }
-}
-
-fn longest_edge(mesh: &Mesh, cell: usize) -> f64 {
-    let [a, b, c] = mesh.cell_vertices(cell);
-    let d = |p: [f64; 2], q: [f64; 2]| (p[0] - q[0]).hypot(p[1] - q[1]);
-    d(a, b).max(d(b, c)).max(d(c, a))
 }
 
 #[cfg(test)]

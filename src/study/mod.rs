@@ -369,28 +369,16 @@ fn part_coefficients(
     field: &FlowField,
     part: PartId,
 ) -> Result<PartCoefficients, PostError> {
-    let fluid = FluidProperties {
-        density: case.fluid.density,
-        viscosity: case.fluid.kinematic_viscosity,
-        form: case.model.viscous_form,
-    };
-    let body_force = case
-        .body_force
-        .as_ref()
-        .map(|[fx, fy]| move |p: [f64; 2]| [fx.eval(p[0], p[1], 0.0), fy.eval(p[0], p[1], 0.0)]);
+    let fluid = FluidProperties::of_case(case);
+    let body_force = post::case_body_force(case, 0.0);
     let terms = VolumeForceTerms {
-        body_force: body_force.as_ref().map(|f| f as &(dyn Fn([f64; 2]) -> [f64; 2] + Sync)),
+        body_force: body_force.as_deref(),
         convecting_velocity: (case.model.equations == Equations::NavierStokes)
             .then_some(&field.velocity[..]),
         ..VolumeForceTerms::default()
     };
     let force = post::volume_force(mesh, field, &fluid, part, &terms)?;
-    let scales = ReferenceScales {
-        density: case.fluid.density,
-        velocity: case.fluid.reference_velocity,
-        length: case.fluid.reference_length,
-    };
-    let c = post::coefficients(&force, &scales)?;
+    let c = post::coefficients(&force, &ReferenceScales::of_case(case))?;
     Ok(PartCoefficients { part: case.part_name(part).to_string(), drag: c.drag, lift: c.lift })
 }
 
@@ -437,8 +425,9 @@ fn difference_norms(
         let parent = c / 4;
         let tri = AffineTriangle::new(coarse.cell_vertices(parent));
         let nodes = &coarse.cells[parent];
+        let child = AffineTriangle::new(fine.cell_vertices(c));
         for (k, &node) in cell.iter().enumerate() {
-            let x = AffineTriangle::new(fine.cell_vertices(c)).point(P2_NODE_BARYCENTRIC[k]);
+            let x = child.point(P2_NODE_BARYCENTRIC[k]);
             let l = barycentric(&tri, x);
             let phi = p2_values(l);
             let mut u = [0.0; 2];
@@ -476,13 +465,7 @@ fn barycentric(tri: &AffineTriangle, x: [f64; 2]) -> [f64; 3] {
 }
 
 fn longest_edge(mesh: &Mesh) -> f64 {
-    (0..mesh.n_cells())
-        .map(|c| {
-            let [a, b, d] = mesh.cell_vertices(c);
-            let len = |p: [f64; 2], q: [f64; 2]| (p[0] - q[0]).hypot(p[1] - q[1]);
-            len(a, b).max(len(b, d)).max(len(d, a))
-        })
-        .fold(0.0, f64::max)
+    (0..mesh.n_cells()).map(|c| mesh.longest_edge(c)).fold(0.0, f64::max)
 }
 
 fn pair_rates(levels: &[LevelResult]) -> Vec<PairRates> {

@@ -135,22 +135,6 @@ pressure_difference = [[0.15, 0.2], [0.25, 0.2]]
     )
 }
 
-fn fluid_of(case: &Case) -> FluidProperties {
-    FluidProperties {
-        density: case.fluid.density,
-        viscosity: case.fluid.kinematic_viscosity,
-        form: case.model.viscous_form,
-    }
-}
-
-fn scales_of(case: &Case) -> ReferenceScales {
-    ReferenceScales {
-        density: case.fluid.density,
-        velocity: case.fluid.reference_velocity,
-        length: case.fluid.reference_length,
-    }
-}
-
 /// Volume-form drag and lift coefficients on the case's first force part, and the pressure
 /// difference, of `field` at one time.
 fn cylinder_quantities(
@@ -165,8 +149,9 @@ fn cylinder_quantities(
         time_derivative,
         ..VolumeForceTerms::default()
     };
-    let force = post::volume_force(mesh, field, &fluid_of(case), case.forces[0], &terms)?;
-    let c = post::coefficients(&force, &scales_of(case))?;
+    let force =
+        post::volume_force(mesh, field, &FluidProperties::of_case(case), case.forces[0], &terms)?;
+    let c = post::coefficients(&force, &ReferenceScales::of_case(case))?;
     let pd = case.pressure_difference.expect("the cylinder cases name a pressure difference");
     let dp = locator.pressure_difference(field, pd.first, pd.second)? * case.fluid.density;
     Ok((c.drag, c.lift, dp))
