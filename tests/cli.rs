@@ -119,6 +119,63 @@ fn run_without_a_case_solves_the_default_case_and_writes_every_result() {
     assert!(wall.starts_with("s,x,y,cp,wall_shear\n") && wall.lines().count() > 100);
 }
 
+#[test]
+fn adaptive_study_writes_tables_plot_and_level_files_with_estimator_and_local_rates() {
+    // The Stokes cavity (lid corners: discontinuous data, the strongest singularities there).
+    let dir = tempfile::tempdir().unwrap();
+    let text = std::fs::read_to_string(repo_root().join("examples/cavity.toml")).unwrap();
+    write_case(dir.path(), &text.replace("size = 0.04", "size = 0.1"));
+    let args = ["study", "case.toml", "--levels", "4", "--refine", "adaptive", "-o", "out"];
+    let out = run_cli(dir.path(), &args);
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    assert!(stdout.contains("Besov-type index") && stdout.contains("estimator"), "{stdout}");
+    let root = dir.path().join("out");
+    let csv = std::fs::read_to_string(root.join("study.csv")).unwrap();
+    assert!(csv.lines().next().unwrap().ends_with("estimator,efficiency_index"), "{csv}");
+    assert_eq!(csv.lines().count(), 5);
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(root.join("study.json")).unwrap()).unwrap();
+    assert_eq!(report["refinement"], "adaptive");
+    let level0 = read_vtu_with_meshio(&root.join("level-0.vtu"));
+    assert!(level0["cell_data"].get("error_estimator").is_some());
+    assert!(level0["cell_data"].get("local_rate").is_none(), "level 0 has no parent");
+    let level3 = read_vtu_with_meshio(&root.join("level-3.vtu"));
+    for name in ["error_estimator", "local_rate", "divergence_error"] {
+        assert!(level3["cell_data"].get(name).is_some(), "level-3.vtu lacks {name}");
+    }
+    // The lid corners (velocity jump) attract the marking: the smallest triangle shrinks and
+    // sits at a lid corner.
+    let smallest = |v: &serde_json::Value| {
+        let points = v["points"].as_array().unwrap();
+        let p = |n: &serde_json::Value| {
+            let q = &points[n.as_u64().unwrap() as usize];
+            [q[0].as_f64().unwrap(), q[1].as_f64().unwrap()]
+        };
+        let cells = v["cells"][0]["data"].as_array().unwrap();
+        cells
+            .iter()
+            .map(|c| {
+                let (a, b, d) = (p(&c[0]), p(&c[1]), p(&c[2]));
+                let area = 0.5 * ((b[0] - a[0]) * (d[1] - a[1]) - (d[0] - a[0]) * (b[1] - a[1]));
+                (area, [(a[0] + b[0] + d[0]) / 3.0, (a[1] + b[1] + d[1]) / 3.0])
+            })
+            .min_by(|x, y| x.0.total_cmp(&y.0))
+            .unwrap()
+    };
+    let ((a0, _), (a3, at)) = (smallest(&level0), smallest(&level3));
+    assert!(a3 < a0 / 4.0, "smallest triangle {a0} -> {a3}");
+    let corner_distance = (at[0].min(1.0 - at[0])).hypot(1.0 - at[1]);
+    assert!(corner_distance < 0.01, "smallest triangle at {at:?}");
+    assert!(std::fs::read_to_string(root.join("study-errors.svg")).unwrap().contains("<svg"));
+    let bad = run_cli(
+        dir.path(),
+        &["study", "case.toml", "--refine", "adaptive", "--marking-fraction", "1.5"],
+    );
+    assert_eq!(bad.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&bad.stderr).contains("marking fraction"));
+}
+
 fn write_case(dir: &Path, text: &str) {
     std::fs::write(dir.join("case.toml"), text).unwrap();
 }

@@ -59,11 +59,16 @@ pub struct StudyArgs {
     /// triangle into four).
     #[arg(long, value_name = "N", default_value_t = 4)]
     pub levels: usize,
-    /// How the meshes are made: `uniform` (nested, every triangle split into four) or `graded`
+    /// How the meshes are made: `uniform` (nested, every triangle split into four), `graded`
     /// (meshed anew per level with the sizes halved and power-law grading toward every corner
-    /// that limits the P2 rate, from the corner analysis; needs an `[exact]` solution).
+    /// that limits the P2 rate, from the corner analysis) or `adaptive` (nested: Dörfler
+    /// marking on the residual error estimator, newest-vertex bisection).
     #[arg(long, value_enum, default_value_t = RefineMode::Uniform)]
     pub refine: RefineMode,
+    /// Adaptive studies: the fraction θ of the squared estimator that the marked triangles
+    /// carry (Dörfler marking), in (0, 1].
+    #[arg(long, value_name = "THETA", default_value_t = cornerflow::study::DEFAULT_MARKING_FRACTION)]
+    pub marking_fraction: f64,
     #[command(flatten)]
     pub meshing: MeshingOptions,
 }
@@ -73,6 +78,7 @@ pub struct StudyArgs {
 pub enum RefineMode {
     Uniform,
     Graded,
+    Adaptive,
 }
 
 #[derive(Debug, Args)]

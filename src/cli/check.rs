@@ -129,13 +129,8 @@ fn study_quantities(
         return Err(anyhow::Error::new(BadInput("--study-levels must be at least 2".into())));
     }
     let (coarse, _) = super::mesh::mesh_case(case, &args.meshing)?;
-    let params = StudyParams {
-        levels,
-        refinement: Refinement::Uniform,
-        snap_to_circles: true,
-        max_cells: super::mesh::cell_budget(case),
-    };
-    let report = run_study(case, coarse, &params, &mut |_, _, _| {})
+    let params = StudyParams::new(levels, Refinement::Uniform, super::mesh::cell_budget(case));
+    let report = run_study(case, coarse, &params, &mut |_| {})
         .with_context(|| format!("study of {}", case.source.display()))?;
     let mut out = Vec::new();
     if let Some(r) = report.rates.last() {

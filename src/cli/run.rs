@@ -330,6 +330,17 @@ pub fn write_field_vtu(
     field: &FlowField,
     path: &Path,
 ) -> anyhow::Result<()> {
+    write_field_vtu_with(case, mesh, field, path, &[])
+}
+
+/// [`write_field_vtu`] with extra per-triangle fields (a study's estimator and local rates).
+pub fn write_field_vtu_with(
+    case: &Case,
+    mesh: &Mesh,
+    field: &FlowField,
+    path: &Path,
+    extra_cell_fields: &[CellField],
+) -> anyhow::Result<()> {
     let derived = post::derived_fields(mesh, field)?;
     let psi = post::stream_function(mesh, field)?;
     let density = case.fluid.density;
@@ -348,9 +359,13 @@ pub fn write_field_vtu(
             PointField::Integer("boundary_part", &tags),
         ],
         &[
-            CellField::Scalar("divergence_error", &derived.divergence_error),
-            CellField::Scalar("quality_min_angle_deg", &quality),
-        ],
+            &[
+                CellField::Scalar("divergence_error", &derived.divergence_error),
+                CellField::Scalar("quality_min_angle_deg", &quality),
+            ],
+            extra_cell_fields,
+        ]
+        .concat(),
         VtuOptions { compress: case.output.compress, boundary_edges: false },
     )?;
     Ok(())

@@ -7,6 +7,7 @@
 //! **Invariant:** the mesh module never sees boundary-condition values or fluid properties;
 //! it knows parts only by their id and name.
 
+pub mod bisect;
 pub mod generate;
 pub mod quality;
 pub mod refine;
@@ -165,6 +166,21 @@ impl Mesh {
     }
 
     /// Number of six-node triangles.
+    /// The (one or two) cells on each vertex-pair edge, keyed by `(min, max)` vertex index;
+    /// `usize::MAX` marks the missing second cell of a boundary edge.
+    pub(crate) fn edge_cells(&self) -> EdgeCells {
+        let mut map: EdgeCells =
+            EdgeMap::with_capacity_and_hasher(3 * self.cells.len() / 2 + 8, Default::default());
+        for (c, cell) in self.cells.iter().enumerate() {
+            for k in 0..3 {
+                let (a, b) = (cell[k], cell[(k + 1) % 3]);
+                let slot = map.entry((a.min(b), a.max(b))).or_insert([usize::MAX; 2]);
+                slot[usize::from(slot[0] != usize::MAX)] = c;
+            }
+        }
+        map
+    }
+
     pub fn n_cells(&self) -> usize {
         self.cells.len()
     }
@@ -260,6 +276,8 @@ impl Mesh {
 /// Hash map keyed by vertex-index pairs with a fixed multiplicative hash: deterministic and
 /// several times faster than the default SipHash on the millions of edges of a large mesh
 /// (keys are small integers from the mesher, not adversarial input).
+/// Cells per edge (see [`Mesh::edge_cells`]).
+pub(crate) type EdgeCells = EdgeMap<[usize; 2]>;
 pub(crate) type EdgeMap<V> = HashMap<(usize, usize), V, BuildHasherDefault<EdgeHasher>>;
 
 /// Multiply-rotate hasher for integer keys (the scheme of the Firefox/rustc "Fx" hash).

@@ -34,16 +34,7 @@ impl Mesh {
                 }
             }
         }
-        let mut out = lift(vertices, &children, &halves, self);
-        if snap_to_circles {
-            for be in &out.boundary_edges {
-                if let Some(circle) = out.part_circles.get(be.part).copied().flatten() {
-                    let m = be.nodes[2];
-                    out.nodes[m] = project(out.nodes[m], circle);
-                }
-            }
-        }
-        out
+        lift_children(vertices, &children, &halves, self, snap_to_circles)
     }
 
     /// For every boundary edge `[a, b, m]` of cell `c` (local edge `k`): the halves
@@ -72,14 +63,14 @@ fn child_cells(c: &[usize; 6]) -> [[usize; 3]; 4] {
 /// children of that parent (`family`) all stay positively oriented.
 fn snap_vertex(vertices: &mut [Point], family: &[[usize; 3]], v: usize, circle: Circle) {
     let old = vertices[v];
-    vertices[v] = project(old, circle);
+    vertices[v] = project_onto_circle(old, circle);
     if !family.iter().all(|t| triangle_area(vertices[t[0]], vertices[t[1]], vertices[t[2]]) > 0.0) {
         vertices[v] = old;
     }
 }
 
 /// Radial projection of `p` onto the circle (the centre itself stays put).
-fn project(p: Point, circle: Circle) -> Point {
+pub(super) fn project_onto_circle(p: Point, circle: Circle) -> Point {
     let (dx, dy) = (p[0] - circle.center[0], p[1] - circle.center[1]);
     let r = dx.hypot(dy);
     if r == 0.0 {
@@ -87,6 +78,27 @@ fn project(p: Point, circle: Circle) -> Point {
     }
     let s = circle.radius / r;
     [circle.center[0] + s * dx, circle.center[1] + s * dy]
+}
+
+/// [`lift`], then (with `snap_to_circles`) the quadratic midpoints of boundary edges on parts
+/// with a circle moved radially onto it.
+pub(super) fn lift_children(
+    vertices: Vec<Point>,
+    children: &[[usize; 3]],
+    halves: &[(usize, [usize; 3], usize)],
+    parent: &Mesh,
+    snap_to_circles: bool,
+) -> Mesh {
+    let mut out = lift(vertices, children, halves, parent);
+    if snap_to_circles {
+        for be in &out.boundary_edges {
+            if let Some(circle) = out.part_circles.get(be.part).copied().flatten() {
+                let m = be.nodes[2];
+                out.nodes[m] = project_onto_circle(out.nodes[m], circle);
+            }
+        }
+    }
+    out
 }
 
 /// Builds the six-node mesh from the children without re-validation: midpoints are shared

@@ -29,6 +29,7 @@
 //! V. John, G. Matthies, *Higher-order finite element discretizations in a benchmark problem
 //! for incompressible flows*, Int. J. Numer. Meth. Fluids 37 (2001) 885–903 (volume form).
 
+pub mod estimator;
 mod fields;
 mod forces;
 mod probe;
@@ -36,6 +37,7 @@ pub mod series;
 mod streamfunction;
 mod wall;
 
+pub use estimator::{BoundaryResidual, ErrorEstimate, EstimatorInputs, residual_estimate};
 pub use fields::{
     DerivedFields, derived_fields, divergence_error, pressure_at_nodes, speed, vorticity,
 };

@@ -49,6 +49,8 @@ pub enum Tolerance {
     Absolute(f64),
     /// `ours ≥ bound` (observed convergence rates).
     AtLeast(f64),
+    /// `ours ≤ bound` (spreads and ratios that must stay bounded).
+    AtMost(f64),
 }
 
 impl Tolerance {
@@ -57,6 +59,7 @@ impl Tolerance {
             Tolerance::Relative(t) => (ours - reference).abs() <= t * reference.abs(),
             Tolerance::Absolute(t) => (ours - reference).abs() <= t,
             Tolerance::AtLeast(b) => ours >= b,
+            Tolerance::AtMost(b) => ours <= b,
         }
     }
 
@@ -66,6 +69,7 @@ impl Tolerance {
             Tolerance::Relative(t) => format!("{} %", t * 100.0),
             Tolerance::Absolute(t) => format!("± {t}"),
             Tolerance::AtLeast(b) => format!("≥ {b}"),
+            Tolerance::AtMost(b) => format!("≤ {b}"),
         }
     }
 }
