@@ -9,10 +9,17 @@ use cornerflow::validation::{Level, ValidationError, run_case, run_cases};
 
 #[test]
 fn quick_validation_subset_meets_the_published_values() {
-    let names =
-        ["kovasznay", "l-shape", "cylinder-steady", "cavity-100", "cavity-1000"].map(String::from);
+    let names = [
+        "kovasznay",
+        "l-shape",
+        "profile-trailing-edge",
+        "cylinder-steady",
+        "cavity-100",
+        "cavity-1000",
+    ]
+    .map(String::from);
     let rows = run_cases(&names, Level::Quick, &mut |line| eprintln!("{line}")).unwrap();
-    assert_eq!(rows.len(), 3 + 2 + 3 + 2 + 3);
+    assert_eq!(rows.len(), 3 + 5 + 1 + 3 + 2 + 3);
     for row in &rows {
         eprintln!(
             "{:<16} {:<42} ours {:>12.6} published {:>12.6} ({}) {}",

@@ -19,9 +19,10 @@ use crate::study::fitted_rate;
 use super::{Level, Tolerance, ValidationError, ValidationRow, origin};
 
 /// Every built-in case, in the order `all` runs them.
-pub const CASE_NAMES: [&str; 7] = [
+pub const CASE_NAMES: [&str; 8] = [
     "kovasznay",
     "l-shape",
+    "profile-trailing-edge",
     "cylinder-steady",
     "cavity-100",
     "cavity-1000",
@@ -52,6 +53,7 @@ pub fn run_case(
     match name {
         "kovasznay" => kovasznay(level),
         "l-shape" => l_shape(level),
+        "profile-trailing-edge" => profile_trailing_edge(level),
         "cylinder-steady" => cylinder_steady(level),
         "cylinder-periodic" => cylinder_periodic(level, progress),
         "cylinder-inflow" => cylinder_inflow(level, progress),
@@ -763,4 +765,57 @@ fn re_entrant_corner_fit(case: &Case, level: Option<(Mesh, FlowField)>) -> Resul
         .find(|m| m.location[0].abs() < 1e-12 && m.location[1].abs() < 1e-12)
         .ok_or("the re-entrant corner was not classified singular")?;
     corner.fit.as_ref().map(|f| f.lambda).map_err(|e| e.clone())
+}
+
+// ---------------------------------------------------------------------------------------
+// The default sharp-edged profile (`examples/profile-channel.toml`, Stokes): the exponent
+// fitted at its trailing edge against the wedge prediction for its fluid angle (Dauge 1989,
+// benchmarks.md §2.2: λ₁ = 0.500241 at 343.46°; the tolerance 0.05).
+
+fn profile_trailing_edge(level: Level) -> Result<Vec<ValidationRow>, ValidationError> {
+    let name = "profile-trailing-edge";
+    let case = Case::default_case();
+    let mut controls = case.mesh.clone();
+    if level == Level::Quick {
+        controls.size *= 1.5;
+    }
+    let (mesh, _) = generate(&case.domain, &controls)?;
+    let (field, _) = crate::solver::solve_stokes(
+        &mesh,
+        &StokesProblem::from_case(&case),
+        &SolverParams::default(),
+    )?;
+    let analysis = crate::corners::try_analyse_corners(
+        &case.domain,
+        &case.conditions,
+        case.model.viscous_form,
+        &crate::corners::AnalysisParams::default(),
+    )
+    .map_err(|e| ValidationError::Failed { case: name.into(), what: e.to_string() })?;
+    let measured =
+        crate::corners::measure_singular_corners(&case.domain, &mesh, &field, &analysis.reports);
+    // The trailing edge is the corner with the largest fluid angle.
+    let te = measured
+        .iter()
+        .max_by(|a, b| {
+            let angle = |m: &crate::corners::MeasuredExponent| analysis.reports[m.corner].angle_deg;
+            angle(a).total_cmp(&angle(b))
+        })
+        .ok_or_else(|| ValidationError::Failed {
+            case: name.into(),
+            what: "no singular corner".into(),
+        })?;
+    let fitted = te
+        .fit
+        .as_ref()
+        .map_err(|e| ValidationError::Failed { case: name.into(), what: e.clone() })?
+        .lambda;
+    Ok(vec![ValidationRow::new(
+        name,
+        "fitted trailing-edge exponent",
+        fitted,
+        te.predicted,
+        Tolerance::Absolute(0.05),
+        "Dauge (1989) wedge exponent for the trailing-edge angle (benchmarks.md §2.2)",
+    )])
 }
