@@ -176,6 +176,31 @@ fn adaptive_study_writes_tables_plot_and_level_files_with_estimator_and_local_ra
     assert!(String::from_utf8_lossy(&bad.stderr).contains("marking fraction"));
 }
 
+#[test]
+fn check_with_an_adaptive_study_stores_and_rechecks_the_besov_index() {
+    let dir = tempfile::tempdir().unwrap();
+    let text = std::fs::read_to_string(repo_root().join("examples/cavity.toml")).unwrap();
+    write_case(dir.path(), &text.replace("size = 0.04", "size = 0.1"));
+    let args = ["check", "case.toml", "--baseline", "b.json", "--study-levels", "3"];
+    let update =
+        run_cli(dir.path(), &[&args[..], &["--study-refine", "adaptive", "--update"]].concat());
+    assert!(update.status.success(), "{}", String::from_utf8_lossy(&update.stderr));
+    let base: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("b.json")).unwrap()).unwrap();
+    let names: Vec<&str> = base["quantities"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|q| q["name"].as_str().unwrap())
+        .collect();
+    for name in ["study.besov_index", "study.adaptive_rate_in_n", "study.rate.u_h1"] {
+        assert!(names.contains(&name), "{name} missing from {names:?}");
+    }
+    // The same run reproduces the baseline (deterministic marking and bisection).
+    let same = run_cli(dir.path(), &[&args[..], &["--study-refine", "adaptive"]].concat());
+    assert!(same.status.success(), "{}", String::from_utf8_lossy(&same.stdout));
+}
+
 fn write_case(dir: &Path, text: &str) {
     std::fs::write(dir.join("case.toml"), text).unwrap();
 }

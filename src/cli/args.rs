@@ -46,6 +46,10 @@ pub struct CheckArgs {
     /// observed rates and Richardson-extrapolated forces (steady cases).
     #[arg(long, value_name = "N")]
     pub study_levels: Option<usize>,
+    /// Refinement of that study: `uniform` (rates in h, Sobolev-type index, extrapolated
+    /// forces), `graded`, or `adaptive` (also the fitted rate in N and the Besov-type index).
+    #[arg(long, value_enum, default_value_t = RefineMode::Uniform)]
+    pub study_refine: RefineMode,
     #[command(flatten)]
     pub meshing: MeshingOptions,
 }

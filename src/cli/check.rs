@@ -2,7 +2,8 @@
 //! (writing the usual files), collects its quantities from the run summary — forces by both
 //! formulas, the pressure difference, predicted and fitted corner exponents, and for a
 //! time-dependent case the maxima of the coefficients and the Strouhal number; with
-//! `--study-levels N` also the observed rates and extrapolated forces of a uniform study — and
+//! `--study-levels N [--study-refine uniform|graded|adaptive]` also the observed rates,
+//! regularity indices and extrapolated forces of a study — and
 //! compares them with the baseline. Exit codes: 0 all hold, 1 a regression (or a quantity missing), 2
 //! bad input (case or baseline file).
 
@@ -117,8 +118,9 @@ fn quantities(summary: &Value) -> Vec<Quantity> {
     out
 }
 
-/// Runs a uniform study and returns `study.rate.{u_l2,u_h1,p_l2}` (last pair, in h),
-/// `study.sobolev_index` and `study.<part>.<drag|lift>_extrapolated`.
+/// Runs the study and returns `study.rate.{u_l2,u_h1,p_l2}` (last pair, in h; in N for
+/// adaptive studies), `study.sobolev_index`, `study.adaptive_rate_in_n`, `study.besov_index`
+/// and `study.<part>.<drag|lift>_extrapolated`, as far as the refinement gives them.
 fn study_quantities(
     case: &cornerflow::case::Case,
     args: &CheckArgs,
@@ -129,21 +131,31 @@ fn study_quantities(
         return Err(anyhow::Error::new(BadInput("--study-levels must be at least 2".into())));
     }
     let (coarse, _) = super::mesh::mesh_case(case, &args.meshing)?;
-    let params = StudyParams::new(levels, Refinement::Uniform, super::mesh::cell_budget(case));
+    let refinement = match args.study_refine {
+        super::args::RefineMode::Uniform => Refinement::Uniform,
+        super::args::RefineMode::Graded => Refinement::Graded,
+        super::args::RefineMode::Adaptive => Refinement::Adaptive,
+    };
+    let params = StudyParams::new(levels, refinement, super::mesh::cell_budget(case));
     let report = run_study(case, coarse, &params, &mut |_| {})
         .with_context(|| format!("study of {}", case.source.display()))?;
     let mut out = Vec::new();
     if let Some(r) = report.rates.last() {
-        for (name, value) in [
-            ("u_l2", r.in_h.velocity_l2),
-            ("u_h1", r.in_h.velocity_h1),
-            ("p_l2", r.in_h.pressure_l2),
-        ] {
+        let rates = if refinement == Refinement::Adaptive { r.in_n } else { r.in_h };
+        for (name, value) in
+            [("u_l2", rates.velocity_l2), ("u_h1", rates.velocity_h1), ("p_l2", rates.pressure_l2)]
+        {
             out.push(Quantity { name: format!("study.rate.{name}"), value });
         }
     }
-    if let Some(s) = report.sobolev_index {
-        out.push(Quantity { name: "study.sobolev_index".into(), value: s });
+    for (name, value) in [
+        ("sobolev_index", report.sobolev_index),
+        ("adaptive_rate_in_n", report.adaptive_rate_in_n),
+        ("besov_index", report.besov_index),
+    ] {
+        if let Some(value) = value {
+            out.push(Quantity { name: format!("study.{name}"), value });
+        }
     }
     for x in &report.extrapolations {
         if let Some(value) = x.extrapolated {

@@ -86,7 +86,9 @@ pub enum CheckStatus {
 /// exponents depend on the fit window, `0.01` absolute; everything else (forces, Strouhal numbers, pressure
 /// differences) `1e-4` relative, far above run-to-run round-off and far below a real change.
 pub fn default_tolerance(name: &str) -> CheckTolerance {
-    if name.starts_with("study.rate.") || name == "study.sobolev_index" {
+    if name.starts_with("study.rate.")
+        || matches!(name, "study.sobolev_index" | "study.besov_index" | "study.adaptive_rate_in_n")
+    {
         // Observed rates move with the fit window, like fitted exponents.
         CheckTolerance::Absolute(0.05)
     } else if name.ends_with(".predicted") {
