@@ -33,6 +33,12 @@ pub fn print_eddies(eddies: &[Result<EddySequence, EddyError>]) {
 fn print_sequence(s: &EddySequence) {
     let [x, y] = s.location;
     let (lo, hi) = s.resolved_range;
+    if s.eddies.is_empty() {
+        println!(
+            "  ({x:.4}, {y:.4}): no eddy in the resolved range r in [{lo:.2e}, {hi:.2e}] (grade the mesh toward the corner to resolve more)"
+        );
+        return;
+    }
     println!(
         "  ({x:.4}, {y:.4}): {} eddies in the resolved range r in [{lo:.2e}, {hi:.2e}]",
         s.eddies.len()

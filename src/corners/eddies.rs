@@ -20,7 +20,10 @@
 //! integral is local: unlike the global least-squares stream function
 //! ([`stream_function`](crate::post::stream_function)), whose residual is the non-solenoidal
 //! part of `u_h` over the whole domain, it carries no error from far away, which matters
-//! when the second eddy's `ψ` is 1e-9 of the primary vortex's.
+//! when the second eddy's `ψ` is 1e-9 of the primary vortex's. (Measured in the Stokes
+//! cavity of `cornerflow validate cavity-eddies`: the largest nodal value of the
+//! least-squares `ψ` was 2.4e-5 on the full mesh and 1.7e-4 on the quick one, where the
+//! first corner eddy's maximum is 2.23e-6; the bisector flux gives 2.2274e-6.)
 //!
 //! Which radii are trusted (the rule): a sample at distance `r` counts as resolved when the
 //! cell containing it has a longest edge `≤ r / min_cells` (at least `min_cells` elements
@@ -63,11 +66,15 @@ pub struct EddyParams {
     pub max_fraction: f64,
     /// Elements between the corner and a trusted sample (see the module docs). Default 4.
     pub min_cells: f64,
-    /// Multiple of `ε · U · r` below which `ψ` has no sign. Default 1e4: in the Stokes
-    /// cavity (`cornerflow validate cavity-eddies`) the flux integral of a well-converged
-    /// solve carried noise of about 1e3 `ε U r` near the corner (the fourth eddy, whose
-    /// `|ψ|` is about 5e-20, appeared as a sign change of the wrong size), so 1e4 keeps a
-    /// factor 10 of margin. Noisier solves need a larger factor.
+    /// Multiple of `ε · U · r` below which `ψ` has no sign. Default 1e4. Measured in the
+    /// Stokes cavity: with the solve of `cornerflow validate cavity-eddies` (relative
+    /// residual 1e-13, regularisation only of pivots below 1e-30) the flux integral carried
+    /// noise below 1e3 `ε U r` (the fourth eddy, `|ψ| ≈ 5e-20`, showed as a sign change of
+    /// the wrong size at 1e3), so 1e4 keeps a factor 10 of margin. The default solve
+    /// (residual 1e-10, pivots below 1e-11 replaced by ±1e-8) on a grading down to
+    /// `h = 1e-6` was noisier, about 3e4 `ε U r` near `r = 2e-4`, and there the third eddy
+    /// came out with the wrong size; with `h ≥ 1e-4` at the corner (no perturbed pivots) the
+    /// first two eddies were clean.
     pub noise_factor: f64,
 }
 
