@@ -22,23 +22,24 @@ pub fn print_eddies(eddies: &[Result<EddySequence, EddyError>]) {
         return;
     }
     println!("Moffatt eddies on the corner bisectors (sign changes of ψ − ψ_wall):");
+    let mut unresolved = 0;
     for e in eddies {
         match e {
+            Ok(s) if s.eddies.is_empty() => unresolved += 1,
             Ok(s) => print_sequence(s),
             Err(why) => println!("  no eddies measured: {why}"),
         }
+    }
+    if unresolved > 0 {
+        println!(
+            "  {unresolved} corner(s) with a complex leading root: no eddy in the resolved range (grade the mesh toward the corner to resolve them; ranges in summary.json)"
+        );
     }
 }
 
 fn print_sequence(s: &EddySequence) {
     let [x, y] = s.location;
     let (lo, hi) = s.resolved_range;
-    if s.eddies.is_empty() {
-        println!(
-            "  ({x:.4}, {y:.4}): no eddy in the resolved range r in [{lo:.2e}, {hi:.2e}] (grade the mesh toward the corner to resolve more)"
-        );
-        return;
-    }
     println!(
         "  ({x:.4}, {y:.4}): {} eddies in the resolved range r in [{lo:.2e}, {hi:.2e}]",
         s.eddies.len()
