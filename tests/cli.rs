@@ -239,6 +239,33 @@ fn a_solve_that_cannot_fit_in_memory_is_refused_before_meshing() {
 }
 
 #[test]
+fn run_reports_moffatt_eddies_in_the_bottom_corners_of_a_graded_stokes_cavity() {
+    // examples/cavity-eddies.toml on a coarser grading (about 6 elements across every r down
+    // to 1e-3): the first two eddies of each bottom corner are resolved.
+    let dir = tempfile::tempdir().unwrap();
+    let text = std::fs::read_to_string(repo_root().join("examples/cavity-eddies.toml")).unwrap();
+    let text = text.replace("size = 0.04", "size = 0.05").replace("growth = 0.1", "growth = 0.15");
+    write_case(dir.path(), &text);
+    let out = run_cli(dir.path(), &["run", "case.toml", "-o", "out"]);
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    assert!(stdout.contains("Moffatt eddies") && stdout.contains("size ratios"), "{stdout}");
+    let summary: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(dir.path().join("out/summary.json")).unwrap(),
+    )
+    .unwrap();
+    let eddies = summary["eddies"].as_array().unwrap();
+    // Two bottom corners; the lid corners (discontinuous data) are not measured.
+    assert_eq!(eddies.len(), 2, "{eddies:?}");
+    for corner in eddies {
+        let measured = corner["size_ratios"][0].as_f64().unwrap();
+        let predicted = corner["predicted"]["size_ratio"].as_f64().unwrap();
+        // The 10 % on e^(π/q) of the 90° root (Moffatt 1964; benchmarks.md §2.3).
+        assert!((measured / predicted - 1.0).abs() < 0.1, "{measured} vs {predicted}");
+    }
+}
+
+#[test]
 fn missing_case_file_and_bad_options_are_bad_input() {
     let dir = tempfile::tempdir().unwrap();
     let out = run_cli(dir.path(), &["mesh", "nowhere.toml"]);

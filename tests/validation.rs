@@ -2,7 +2,8 @@
 //! meshes, the relaxed tolerances stated beside each row in `src/validation/cases.rs`, every
 //! reference value published (Schäfer & Turek 1996 with Nabh 1998 / John & Matthies 2001;
 //! Ghia, Ghia & Shin 1982; Botella & Peyret 1998; Kovasznay 1948; Verfürth 1996 with Dauge
-//! 1989). The time-dependent cylinder cases run only at the full level (`cornerflow validate
+//! 1989; Moffatt 1964 for the corner eddies of the Stokes cavity; Dauge 1989 for the Stokes
+//! backward step). The time-dependent cylinder cases run only at the full level (`cornerflow validate
 //! all`, minutes each).
 
 use cornerflow::validation::{Level, ValidationError, run_case, run_cases};
@@ -16,10 +17,12 @@ fn quick_validation_subset_meets_the_published_values() {
         "cylinder-steady",
         "cavity-100",
         "cavity-1000",
+        "cavity-eddies",
+        "step-stokes",
     ]
     .map(String::from);
     let rows = run_cases(&names, Level::Quick, &mut |line| eprintln!("{line}")).unwrap();
-    assert_eq!(rows.len(), 3 + 5 + 1 + 3 + 2 + 3);
+    assert_eq!(rows.len(), 3 + 5 + 1 + 3 + 2 + 3 + 5 + 1);
     for row in &rows {
         eprintln!(
             "{:<16} {:<42} ours {:>12.6} published {:>12.6} ({}) {}",

@@ -87,8 +87,9 @@ pub enum RefineMode {
 
 #[derive(Debug, Args)]
 pub struct ValidateArgs {
-    /// Cases to run: `all` (default) or names among kovasznay, l-shape, cylinder-steady,
-    /// cavity-100, cavity-1000, cylinder-inflow, cylinder-periodic.
+    /// Cases to run: `all` (default) or names among kovasznay, l-shape,
+    /// profile-trailing-edge, step-stokes, cavity-eddies, cylinder-steady, cavity-100,
+    /// cavity-1000, cylinder-inflow, cylinder-periodic.
     #[arg(value_name = "NAME", default_values_t = vec!["all".to_string()])]
     pub names: Vec<String>,
     /// Coarse meshes and relaxed tolerances (the subset CI runs); skips the time-dependent

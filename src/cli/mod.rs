@@ -4,6 +4,7 @@
 pub mod args;
 mod check;
 mod corners;
+mod eddies;
 mod export;
 mod mesh;
 mod progress;

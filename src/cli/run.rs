@@ -9,7 +9,8 @@ use std::time::Instant;
 use anyhow::Context;
 use cornerflow::case::{Case, Equations};
 use cornerflow::corners::{
-    AnalysisParams, MeasuredExponent, measure_singular_corners, try_analyse_corners,
+    AnalysisParams, EddyParams, MeasuredExponent, measure_eddies, measure_singular_corners,
+    try_analyse_corners,
 };
 use cornerflow::fem::FlowField;
 use cornerflow::mesh::Mesh;
@@ -78,6 +79,8 @@ pub fn run(args: &RunArgs) -> anyhow::Result<()> {
     let solve_time = clock.elapsed();
     let clock = Instant::now();
     let measured = measure_singular_corners(&case.domain, &mesh, &field, &corners.reports);
+    let eddies =
+        measure_eddies(&case.domain, &mesh, &field, &corners.reports, &EddyParams::default());
     let convecting =
         (case.model.equations == Equations::NavierStokes).then_some(&field.velocity[..]);
     let forces = report_forces(&case, &mesh, &field, convecting, &out)?;
@@ -96,6 +99,7 @@ pub fn run(args: &RunArgs) -> anyhow::Result<()> {
         "probes": probes_json(&case, &mesh, &field)?,
         "corners": serde_json::to_value(&corners.reports)?,
         "measured_exponents": measured_json(&measured),
+        "eddies": super::eddies::eddies_json(&eddies),
         "stage_timings_s": {
             "mesh": mesh_time.as_secs_f64(),
             "solve": solve_time.as_secs_f64(),
@@ -108,6 +112,7 @@ pub fn run(args: &RunArgs) -> anyhow::Result<()> {
     write_json(&out.join("summary.json"), &summary)?;
     println!("\ncorners of the domain:\n{}", corners.table());
     print_measured(&measured);
+    super::eddies::print_eddies(&eddies);
     eprintln!("results in {}", out.display());
     Ok(())
 }

@@ -48,15 +48,25 @@ fn print_table(rows: &[ValidationRow]) {
     );
     for r in rows {
         println!(
-            "{:<18} {:<42} {:>14.8} {:>14.8} {:>9.3}% {:>9} {:<5} {}",
+            "{:<18} {:<42} {:>14} {:>14} {:>9.3}% {:>9} {:<5} {}",
             r.case,
             r.quantity,
-            r.ours,
-            r.reference,
+            number(r.ours),
+            number(r.reference),
             100.0 * r.relative_difference,
             r.tolerance.describe(),
             if r.passed { "pass" } else { "FAIL" },
             r.source
         );
+    }
+}
+
+/// Eight decimals, or six significant digits in exponent form for magnitudes below 1e-3
+/// (the eddy stream functions) and above 1e6.
+fn number(v: f64) -> String {
+    if v != 0.0 && v.is_finite() && !(1e-3..1e6).contains(&v.abs()) {
+        format!("{v:.6e}")
+    } else {
+        format!("{v:.8}")
     }
 }

@@ -7,12 +7,14 @@
 //! * [`wedge`]: eigenvalue equations of the Stokes wedge for every pair of side conditions.
 //! * [`analysis`]: per-corner reports ([`analyse_corners`]) and the terminal table.
 //! * [`fit`]: local exponent fit from gradient energies in discs around a corner.
+//! * [`eddies`]: Moffatt eddies measured on the corner bisector after a solve.
 //!
 //! **Invariant:** this module reads geometry and boundary-condition kinds (and, for the
 //! discontinuity flag, the prescribed velocity at the corner point); it never meshes or
 //! solves, and only [`fit::gradient_energy_in_discs`] looks at a mesh and a flow field.
 
 pub mod analysis;
+pub mod eddies;
 pub mod fit;
 pub mod measure;
 pub mod roots;
@@ -22,6 +24,10 @@ pub use analysis::{
     AnalysisParams, Classification, CornerAnalysis, CornerError, CornerReport, EddyRatios,
     SideReport, analyse_corners, corner_table, nearest_corner_distance, side_kind,
     try_analyse_corners,
+};
+pub use eddies::{
+    Eddy, EddyError, EddyParams, EddySequence, ProfileSample, corner_bisector, detect_eddies,
+    measure_eddies,
 };
 pub use fit::{
     ExponentFit, FitError, FitRangeParams, fit_local_exponent, fit_radius_range, geometric_radii,

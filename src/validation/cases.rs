@@ -19,10 +19,12 @@ use crate::study::fitted_rate;
 use super::{Level, Tolerance, ValidationError, ValidationRow, origin};
 
 /// Every built-in case, in the order `all` runs them.
-pub const CASE_NAMES: [&str; 8] = [
+pub const CASE_NAMES: [&str; 10] = [
     "kovasznay",
     "l-shape",
     "profile-trailing-edge",
+    "step-stokes",
+    "cavity-eddies",
     "cylinder-steady",
     "cavity-100",
     "cavity-1000",
@@ -59,6 +61,8 @@ pub fn run_case(
         "cylinder-inflow" => cylinder_inflow(level, progress),
         "cavity-100" => cavity(100.0, level),
         "cavity-1000" => cavity(1000.0, level),
+        "cavity-eddies" => super::eddies::cavity_eddies(level, progress),
+        "step-stokes" => super::eddies::step_stokes(level, progress),
         _ => Err(ValidationError::UnknownCase {
             name: name.to_string(),
             known: CASE_NAMES.join(", "),

@@ -14,6 +14,11 @@
 //! * `kovasznay`: Kovasznay (1948) exact solution, observed Taylor–Hood rates.
 //! * `l-shape`: Verfürth's exact singular solution on the L-shaped domain; uniform rate
 //!   against the corner exponent (Dauge 1989), graded rate against the optimal one.
+//! * `step-stokes`: fitted local exponent at the re-entrant corner of a Stokes backward-facing
+//!   step against the 270° no-slip exponent (Dauge 1989).
+//! * `cavity-eddies`: Moffatt eddies in the bottom corners of the Stokes lid-driven cavity on
+//!   strongly graded meshes; size and ψ ratios of successive eddies against the 90° root
+//!   (Moffatt 1964), the first eddy's ψ (benchmarks.md §3.3) and the mirror symmetry.
 //! * `cavity-100`, `cavity-1000`: lid-driven cavity (unregularised lid u = 1, as in the
 //!   references), centreline velocities of Ghia, Ghia & Shin (1982); at Re = 1000 also the
 //!   primary-vortex stream function of Botella & Peyret (1998).
@@ -21,6 +26,7 @@
 //! **Invariant:** no I/O besides the progress callback; the CLI prints the table.
 
 mod cases;
+mod eddies;
 
 use std::path::Path;
 
