@@ -7,6 +7,7 @@
 //! **Invariant:** the mesh module never sees boundary-condition values or fluid properties;
 //! it knows parts only by their id and name.
 
+pub mod dissection;
 pub mod generate;
 pub mod quality;
 pub mod refine;
