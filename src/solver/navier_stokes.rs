@@ -40,7 +40,9 @@ use crate::fem::shape::AffineTriangle;
 use crate::mesh::Mesh;
 
 use super::krylov::{GmresParams, PreconditionedGmres};
-use super::linear::{LinearParams, NonsymmetricSolver, NumericFactor, SolverKind, SymbolicSystem};
+use super::linear::{
+    FillOrdering, LinearParams, NonsymmetricSolver, NumericFactor, SolverKind, SymbolicSystem,
+};
 use super::{SolveError, SolverParams, StageTimings, StokesProblem, build_pattern, expand_field};
 
 /// Forcing term of the inexact Newton steps with GMRES: the linear residual is at most this
@@ -187,6 +189,7 @@ pub fn solve_steady_navier_stokes(
         pattern: &pattern,
         method,
         parallelism: params.parallelism,
+        ordering: params.ordering,
         system: AssembledSystem { values: Vec::new(), rhs: Vec::new(), dropped_entries: 0 },
         timings,
         linear_iterations: 0,
@@ -311,6 +314,8 @@ struct NewtonSolver<'a> {
     pattern: &'a SystemPattern,
     method: NewtonLinear,
     parallelism: Parallelism,
+    /// Ordering of the `LDLᵀ` of the Stokes start.
+    ordering: FillOrdering,
     system: AssembledSystem,
     timings: StageTimings,
     /// GMRES iterations of the last linear solve.
@@ -354,9 +359,39 @@ impl NewtonSolver<'_> {
         kind: Linearisation,
     ) -> Result<Vec<f64>, SolveError> {
         self.assemble(viscosity, w, kind)?;
+        let reused_lu = matches!(
+            self.method,
+            NewtonLinear::Krylov { kind: Preconditioner::ReusedLu { .. }, .. }
+        );
+        if w.is_none() && reused_lu {
+            return self.symmetric_solve();
+        }
         let start = vec![0.0; self.pattern.n()];
         let target = self.linear_target_of_rhs();
         self.factor_and_solve(&start, target)
+    }
+
+    /// Solves the assembled symmetric (Stokes) system by the ordered `LDLᵀ`, whose factor is
+    /// dropped afterwards: cheaper than an LU of the Stokes matrix that GMRES around a reused
+    /// LU would never use again.
+    fn symmetric_solve(&mut self) -> Result<Vec<f64>, SolveError> {
+        let NewtonLinear::Krylov { linear, .. } = &self.method else {
+            unreachable!("called for the Krylov method only")
+        };
+        let linear = LinearParams { kind: SolverKind::Ldlt, ..*linear };
+        let (pattern, values, rhs) = (self.pattern, &self.system.values, &self.system.rhs);
+        let start = Instant::now();
+        let symbolic =
+            super::analyse_for_mesh(pattern, self.mesh, SolverKind::Ldlt, self.ordering)?;
+        self.timings.symbolic += start.elapsed();
+        let start = Instant::now();
+        let factor = symbolic.factorize(pattern, values, &linear)?;
+        self.timings.numeric += start.elapsed();
+        let start = Instant::now();
+        let (x, _) = symbolic.solve(pattern, values, &factor, rhs, &linear)?;
+        self.timings.solve += start.elapsed();
+        self.linear_iterations = 0;
+        Ok(x)
     }
 
     /// `residual_target · ‖b‖`: the direct solvers' target for the assembled system.
