@@ -135,6 +135,16 @@ pub struct RunArgs {
     /// iterative refinement; fastest) or `lu` (general LU; slower, kept as a fallback).
     #[arg(long, value_enum, default_value_t = LinearSolver::Ldlt)]
     pub linear_solver: LinearSolver,
+    /// Solver of the nonsymmetric Newton systems of steady Navier–Stokes cases: `reuse-lu`
+    /// (GMRES preconditioned by the LU of an earlier Newton matrix, refactorised only when
+    /// GMRES stalls; fastest), `lu` (a fresh sparse LU every step) or `stokes-gmres` (GMRES
+    /// preconditioned by the Stokes `LDLᵀ`; least memory, for slow flows only).
+    #[arg(long, value_enum, default_value_t = NewtonSolver::ReuseLu)]
+    pub newton_solver: NewtonSolver,
+    /// Fill-reducing ordering of the `LDLᵀ`: `nested-dissection` (from the mesh geometry;
+    /// fastest) or `amd` (approximate minimum degree on the matrix graph).
+    #[arg(long, value_enum, default_value_t = Ordering::NestedDissection)]
+    pub ordering: Ordering,
     /// Also write the assembled system of a steady Stokes case to this folder:
     /// `matrix.mtx` and `rhs.mtx` (Matrix Market) and `info.json` (sizes, the solver's own
     /// timings and residual), for timing other sparse solvers on the same matrix.
@@ -147,6 +157,21 @@ pub struct RunArgs {
 pub enum LinearSolver {
     Ldlt,
     Lu,
+}
+
+/// Choice of the fill-reducing ordering.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
+pub enum Ordering {
+    NestedDissection,
+    Amd,
+}
+
+/// Choice of the solver of the nonsymmetric Newton systems.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
+pub enum NewtonSolver {
+    ReuseLu,
+    Lu,
+    StokesGmres,
 }
 
 #[derive(Debug, Args)]
@@ -183,6 +208,25 @@ mod tests {
         let Command::Run(args) = cli.command else { panic!("expected run") };
         assert_eq!(args.linear_solver, LinearSolver::Lu);
         assert!(Cli::try_parse_from(["cornerflow", "run", "--linear-solver", "cg"]).is_err());
+    }
+
+    #[test]
+    fn run_takes_a_newton_solver() {
+        let cli = Cli::try_parse_from(["cornerflow", "run"]).unwrap();
+        let Command::Run(args) = cli.command else { panic!("expected run") };
+        assert_eq!(args.newton_solver, NewtonSolver::ReuseLu);
+        assert_eq!(args.ordering, Ordering::NestedDissection);
+        let cli = Cli::try_parse_from(["cornerflow", "run", "--ordering", "amd"]).unwrap();
+        let Command::Run(args) = cli.command else { panic!("expected run") };
+        assert_eq!(args.ordering, Ordering::Amd);
+        let cli = Cli::try_parse_from(["cornerflow", "run", "--newton-solver", "lu"]).unwrap();
+        let Command::Run(args) = cli.command else { panic!("expected run") };
+        assert_eq!(args.newton_solver, NewtonSolver::Lu);
+        let cli =
+            Cli::try_parse_from(["cornerflow", "run", "--newton-solver", "stokes-gmres"]).unwrap();
+        let Command::Run(args) = cli.command else { panic!("expected run") };
+        assert_eq!(args.newton_solver, NewtonSolver::StokesGmres);
+        assert!(Cli::try_parse_from(["cornerflow", "run", "--newton-solver", "cg"]).is_err());
     }
 
     #[test]

@@ -15,7 +15,7 @@ use cornerflow::regression::{Baseline, CheckRow, CheckStatus, Quantity, all_hold
 use serde_json::Value;
 
 use super::BadInput;
-use super::args::{CheckArgs, LinearSolver, RunArgs};
+use super::args::{CheckArgs, LinearSolver, NewtonSolver, Ordering, RunArgs};
 use super::load_case;
 use super::mesh::output_dir;
 
@@ -28,6 +28,8 @@ pub fn run(args: &CheckArgs) -> anyhow::Result<()> {
         meshing: args.meshing.clone(),
         threads: None,
         linear_solver: LinearSolver::Ldlt,
+        newton_solver: NewtonSolver::ReuseLu,
+        ordering: Ordering::NestedDissection,
         export_system: None,
     };
     super::run::run(&run_args)?;

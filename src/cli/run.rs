@@ -20,12 +20,13 @@ use cornerflow::output::vtu::{
 };
 use cornerflow::post::{self, FluidProperties, ReferenceScales, VolumeForceTerms, WallReference};
 use cornerflow::solver::{
-    NewtonError, NewtonInfo, NewtonParams, SolveError, SolveInfo, SolverKind, SolverParams,
-    StageTimings, StokesProblem, solve_steady_navier_stokes, solve_stokes,
+    FillOrdering, NewtonError, NewtonInfo, NewtonParams, NonsymmetricSolver, SolveError, SolveInfo,
+    SolverKind, SolverParams, StageTimings, StokesProblem, solve_steady_navier_stokes,
+    solve_stokes,
 };
 use serde_json::{Value, json};
 
-use super::args::{LinearSolver, RunArgs};
+use super::args::{LinearSolver, NewtonSolver, Ordering, RunArgs};
 use super::mesh::{check_memory, mesh_case, output_dir, print_summary, write_mesh_vtu};
 use super::progress::Stage;
 use super::unsteady::{UnsteadySetup, run_unsteady};
@@ -68,7 +69,7 @@ pub fn run(args: &RunArgs) -> anyhow::Result<()> {
     let clock = Instant::now();
     let (field, solver) = match case.model.equations {
         Equations::Stokes => {
-            let (field, info) = solve_steady_stokes(&case, &mesh, args.linear_solver)?;
+            let (field, info) = solve_steady_stokes(&case, &mesh, args)?;
             if let Some(dir) = &args.export_system {
                 super::export::export_system(dir, &case, &mesh, args.linear_solver, &info)?;
             }
@@ -137,12 +138,27 @@ fn solve_steady_navier_stokes_stage(
     let stage = Stage::start(
         "solve",
         &format!(
-            "steady Navier–Stokes (Re = {:.4}), Newton's method on Taylor–Hood P2–P1, sparse LU",
-            case.fluid.reynolds_number()
+            "steady Navier–Stokes (Re = {:.4}), Newton's method on Taylor–Hood P2–P1, {}",
+            case.fluid.reynolds_number(),
+            match args.newton_solver {
+                NewtonSolver::ReuseLu => "GMRES preconditioned by a reused sparse LU",
+                NewtonSolver::Lu => "sparse LU",
+                NewtonSolver::StokesGmres => "GMRES preconditioned by the Stokes LDLᵀ",
+            }
         ),
     );
     let problem = StokesProblem::from_case(case);
-    let params = SolverParams { kind: solver_kind(args.linear_solver), ..SolverParams::default() };
+    let nonsymmetric = match args.newton_solver {
+        NewtonSolver::ReuseLu => NonsymmetricSolver::GmresReusedLu,
+        NewtonSolver::Lu => NonsymmetricSolver::Lu,
+        NewtonSolver::StokesGmres => NonsymmetricSolver::GmresStokes,
+    };
+    let params = SolverParams {
+        kind: solver_kind(args.linear_solver),
+        nonsymmetric,
+        ordering: fill_ordering(args.ordering),
+        ..SolverParams::default()
+    };
     match solve_steady_navier_stokes(
         mesh,
         &problem,
@@ -152,11 +168,16 @@ fn solve_steady_navier_stokes_stage(
         Ok((field, info)) => {
             for (k, it) in info.iterations.iter().enumerate() {
                 eprintln!(
-                    "[solve]   step {k:>2} {}: residual {:.3e}, update {:.3e}, ν = {:.4e}",
+                    "[solve]   step {k:>2} {}: residual {:.3e}, update {:.3e}, ν = {:.4e}{}",
                     if it.newton { "Newton" } else { "Picard" },
                     it.residual,
                     it.update,
-                    it.viscosity
+                    it.viscosity,
+                    if it.linear_iterations > 0 {
+                        format!(", {} GMRES iterations", it.linear_iterations)
+                    } else {
+                        String::new()
+                    }
                 );
             }
             stage.done(&format!(
@@ -213,6 +234,13 @@ pub fn solver_kind(choice: LinearSolver) -> SolverKind {
     }
 }
 
+pub fn fill_ordering(choice: Ordering) -> FillOrdering {
+    match choice {
+        Ordering::NestedDissection => FillOrdering::NestedDissection,
+        Ordering::Amd => FillOrdering::Amd,
+    }
+}
+
 fn configure_threads(threads: Option<usize>) -> anyhow::Result<()> {
     if let Some(n) = threads {
         if n == 0 {
@@ -226,14 +254,15 @@ fn configure_threads(threads: Option<usize>) -> anyhow::Result<()> {
 fn solve_steady_stokes(
     case: &Case,
     mesh: &Mesh,
-    linear_solver: LinearSolver,
+    args: &RunArgs,
 ) -> anyhow::Result<(FlowField, SolveInfo)> {
-    let kind = solver_kind(linear_solver);
+    let kind = solver_kind(args.linear_solver);
+    let ordering = fill_ordering(args.ordering);
     let name = if kind == SolverKind::Lu { "LU" } else { "LDLᵀ" };
     let stage = Stage::start("solve", &format!("steady Stokes, Taylor–Hood P2–P1, sparse {name}"));
     let problem = StokesProblem::from_case(case);
     let (field, info) =
-        solve_stokes(mesh, &problem, &SolverParams { kind, ..SolverParams::default() })
+        solve_stokes(mesh, &problem, &SolverParams { kind, ordering, ..SolverParams::default() })
             .map_err(|e| solve_error(case, e))?;
     stage.done(&format!(
         "{} unknowns, relative residual {:.1e} after {} refinement step(s){}",
@@ -420,6 +449,7 @@ fn solver_json(info: &SolveInfo) -> Value {
         "velocity_dofs": info.n_velocity_dofs,
         "pressure_dofs": info.n_pressure_dofs,
         "nonzeros": info.nnz,
+        "factor_entries": info.factor_entries,
         "relative_residual": info.relative_residual,
         "refinement_steps": info.refinement_steps,
         "pressure_fixed_to_zero_mean": info.pressure_fixed,

@@ -37,7 +37,8 @@ use serde_json::{Value, json};
 use super::args::RunArgs;
 use super::progress::Stage;
 use super::run::{
-    mesh_json, model_name, peak_memory_bytes, solve_error, solver_kind, write_field_vtu,
+    fill_ordering, mesh_json, model_name, peak_memory_bytes, solve_error, solver_kind,
+    write_field_vtu,
 };
 
 /// What the steady part of `run` has prepared for the time loop.
@@ -84,7 +85,11 @@ pub fn run_unsteady(case: &Case, mesh: &Mesh, setup: &UnsteadySetup) -> anyhow::
     };
     let defaults = ImexParams::new(time.dt);
     let params = ImexParams {
-        solver: SolverParams { kind: solver_kind(setup.args.linear_solver), ..defaults.solver },
+        solver: SolverParams {
+            kind: solver_kind(setup.args.linear_solver),
+            ordering: fill_ordering(setup.args.ordering),
+            ..defaults.solver
+        },
         speed_scale: case.fluid.reference_velocity,
         ..defaults
     };

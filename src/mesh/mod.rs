@@ -8,6 +8,7 @@
 //! it knows parts only by their id and name.
 
 pub mod bisect;
+pub mod dissection;
 pub mod generate;
 pub mod quality;
 pub mod refine;

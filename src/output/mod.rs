@@ -9,6 +9,7 @@ pub mod atomic;
 pub mod matrix_market;
 pub mod table;
 pub mod vtu;
+mod vtu_stream;
 
 pub use atomic::write_atomic;
 pub use vtu::{CellField, PointField, VtuOptions, write_pvd, write_vtu};

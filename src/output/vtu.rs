@@ -3,7 +3,8 @@
 //! three-node quadratic edges (VTK cell type 21) carrying their part id.
 //!
 //! Data are written as inline base64 binary, uncompressed by default (fast and read by every
-//! VTK reader) or zlib-compressed on request; see `stack-notes.md` §4 for why only zlib.
+//! VTK reader; streamed straight to the file by [`super::vtu_stream`]) or zlib-compressed on
+//! request through vtkio's model; see `stack-notes.md` §4 for why only zlib.
 
 use std::path::Path;
 
@@ -55,6 +56,13 @@ pub fn write_vtu(
     options: VtuOptions,
 ) -> Result<(), OutputError> {
     check_lengths(path, mesh, point_fields, cell_fields)?;
+    if !options.compress {
+        let io_err = |source| OutputError::Io { path: path.to_path_buf(), source };
+        return write_atomic(path, |w| {
+            super::vtu_stream::write(w, mesh, point_fields, cell_fields, options.boundary_edges)
+                .map_err(io_err)
+        });
+    }
     let n_edges = if options.boundary_edges { mesh.boundary_edges.len() } else { 0 };
     let mut cell_attrs: Vec<Attribute> =
         cell_fields.iter().map(|f| cell_attribute(f, n_edges)).collect();
@@ -218,6 +226,6 @@ pub fn write_pvd(path: &Path, entries: &[(f64, String)]) -> Result<(), OutputErr
     super::atomic::write_text_atomic(path, &text)
 }
 
-fn xml_escape(s: &str) -> String {
+pub(super) fn xml_escape(s: &str) -> String {
     s.replace('&', "&amp;").replace('"', "&quot;").replace('<', "&lt;").replace('>', "&gt;")
 }

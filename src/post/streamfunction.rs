@@ -8,20 +8,27 @@
 //! normal equations are the pure-Neumann Poisson problem
 //! `(∇ψ_h, ∇φ) = (u_h, ∂φ/∂y) − (v_h, ∂φ/∂x)` for all P2 `φ` vanishing at the pin, whose
 //! matrix is symmetric positive definite on a connected mesh; it is solved by a sparse
-//! Cholesky factorisation (faer). If the velocity is the exact curl of a P2 function
+//! Cholesky factorisation (faer) in the mesh's nested-dissection order
+//! ([`crate::mesh::dissection`]). If the velocity is the exact curl of a P2 function
 //! (divergence-free with zero net flux through every hole boundary), the minimum is zero and
 //! `ψ_h` is that function up to the pinned constant. Otherwise (non-solenoidal field, or net
 //! flux around a hole) `ψ_h` is the least-squares best fit.
 
-use faer::prelude::*;
-use faer::sparse::{SparseColMat, Triplet};
-use faer::{Col, Side};
+use faer::dyn_stack::{MemBuffer, MemStack};
+use faer::linalg::cholesky::llt::factor::LltRegularization;
+use faer::perm::PermRef;
+use faer::sparse::linalg::cholesky::{
+    CholeskySymbolicParams, LltRef, SymmetricOrdering, factorize_symbolic_cholesky,
+};
+use faer::sparse::{SparseColMat, SparseColMatRef, Triplet};
+use faer::{Conj, MatMut, Par, Side};
 
 use super::{PostError, cell_triangle, check_field};
 use crate::fem::FlowField;
 use crate::fem::quadrature::triangle_rule;
 use crate::fem::shape::{p2_gradients, p2_values};
 use crate::mesh::Mesh;
+use crate::mesh::dissection::node_order;
 
 /// P2 stream function `ψ` per mesh node, `ψ = 0` at the first vertex of the first boundary
 /// edge (see the module docs for the formulation).
@@ -51,10 +58,18 @@ pub fn stream_function(mesh: &Mesh, field: &FlowField) -> Result<Vec<f64>, PostE
     let (triplets, rhs) = assemble(mesh, field, &dof);
     let matrix = SparseColMat::<usize, f64>::try_new_from_triplets(n_dofs, n_dofs, &triplets)
         .map_err(|e| PostError::StreamFunction { reason: format!("assembly: {e:?}") })?;
-    let llt = matrix
-        .sp_cholesky(Side::Lower)
-        .map_err(|e| PostError::StreamFunction { reason: format!("cholesky: {e:?}") })?;
-    let x = llt.solve(&Col::from_fn(n_dofs, |i| rhs[i]));
+    let fail =
+        |e: &dyn std::fmt::Debug| PostError::StreamFunction { reason: format!("cholesky: {e:?}") };
+    // The mesh's nested-dissection order: measured faster than AMD on the matrix graph.
+    let perm: Vec<usize> = node_order(mesh).into_iter().filter_map(|n| dof[n]).collect();
+    let mut inverse = vec![usize::MAX; n_dofs];
+    perm.iter().enumerate().for_each(|(k, &d)| inverse[d] = k);
+    if perm.len() != n_dofs {
+        return Err(PostError::StreamFunction { reason: "a node lies in no cell".into() });
+    }
+    let ordering = SymmetricOrdering::Custom(PermRef::new_checked(&perm, &inverse, n_dofs));
+    let mut x: Vec<f64> = rhs[..n_dofs].to_vec();
+    cholesky_solve_in_place(matrix.as_ref(), ordering, &mut x).map_err(|e| fail(&e))?;
     let psi: Vec<f64> = dof.iter().map(|d| d.map_or(0.0, |i| x[i])).collect();
     match psi.iter().position(|v| !v.is_finite()) {
         Some(node) => Err(PostError::StreamFunction {
@@ -62,6 +77,48 @@ pub fn stream_function(mesh: &Mesh, field: &FlowField) -> Result<Vec<f64>, PostE
         }),
         None => Ok(psi),
     }
+}
+
+/// Solves `A x = b` in place (`x` holds `b` on entry) by the sparse Cholesky factorisation of
+/// the symmetric positive definite `A` (lower triangle read) with the given ordering.
+fn cholesky_solve_in_place(
+    matrix: SparseColMatRef<'_, usize, f64>,
+    ordering: SymmetricOrdering<'_, usize>,
+    x: &mut [f64],
+) -> Result<(), Box<dyn std::fmt::Debug>> {
+    let boxed =
+        |e: &dyn std::fmt::Debug| -> Box<dyn std::fmt::Debug> { Box::new(format!("{e:?}")) };
+    let symbolic = factorize_symbolic_cholesky(
+        matrix.symbolic(),
+        Side::Lower,
+        ordering,
+        CholeskySymbolicParams::default(),
+    )
+    .map_err(|e| boxed(&e))?;
+    let par = Par::Seq;
+    let mut l_values = vec![0.0; symbolic.len_val()];
+    let scratch = symbolic.factorize_numeric_llt_scratch::<f64>(par, Default::default());
+    let mut buf = MemBuffer::new(scratch);
+    symbolic
+        .factorize_numeric_llt(
+            &mut l_values,
+            matrix,
+            Side::Lower,
+            LltRegularization::default(),
+            par,
+            MemStack::new(&mut buf),
+            Default::default(),
+        )
+        .map_err(|e| boxed(&e))?;
+    let n = x.len();
+    let mut buf = MemBuffer::new(symbolic.solve_in_place_scratch::<f64>(1, par));
+    LltRef::new(&symbolic, &l_values).solve_in_place_with_conj(
+        Conj::No,
+        MatMut::from_column_major_slice_mut(x, n, 1),
+        par,
+        MemStack::new(&mut buf),
+    );
+    Ok(())
 }
 
 /// Number of connected pieces of the mesh (cells sharing a vertex are connected), by

@@ -24,6 +24,7 @@ use std::borrow::Cow;
 
 use faer::dyn_stack::{MemBuffer, MemStack};
 use faer::linalg::cholesky::ldlt::factor::LdltRegularization;
+use faer::perm::PermRef;
 use faer::sparse::SparseColMatRef;
 use faer::sparse::linalg::cholesky::{
     CholeskySymbolicParams, LdltRef, SymbolicCholesky, SymmetricOrdering,
@@ -46,6 +47,40 @@ pub enum SolverKind {
     Ldlt,
     /// General LU (any nonsingular matrix).
     Lu,
+}
+
+/// The fill-reducing ordering of the `LDLᵀ` factorisation.
+///
+/// [`FillOrdering::NestedDissection`] (default) orders by the mesh geometry
+/// ([`super::ordering`]): measured smaller factors and faster analysis than AMD on the
+/// default case (README, "Performance"). [`FillOrdering::Amd`] is faer's approximate minimum
+/// degree on the matrix graph (no mesh needed).
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub enum FillOrdering {
+    #[default]
+    NestedDissection,
+    Amd,
+}
+
+/// How nonsymmetric (Newton / Oseen) systems are solved ([`super::navier_stokes`]).
+///
+/// * [`NonsymmetricSolver::GmresReusedLu`] (default): GMRES preconditioned by the LU of an
+///   earlier Newton matrix; the current matrix is factorised only when GMRES misses its
+///   target within a small iteration budget. Near convergence the Jacobian barely changes,
+///   so most Newton steps cost a few triangular solves instead of a factorisation.
+/// * [`NonsymmetricSolver::Lu`]: faer's LU (COLAMD + partial pivoting) of every matrix.
+/// * [`NonsymmetricSolver::GmresStokes`]: GMRES preconditioned by the regularised `LDLᵀ`
+///   of the Stokes matrix (factorised once per viscosity; a third of the LU's memory), for
+///   slow flows. Its iteration count grows with the Reynolds number of the whole domain:
+///   76–80 iterations per Newton step on the DFG cylinder at Re = 20 (38k unknowns).
+///
+/// Measurements: README, "Performance".
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub enum NonsymmetricSolver {
+    #[default]
+    GmresReusedLu,
+    Lu,
+    GmresStokes,
 }
 
 /// How the `LDLᵀ` factorisation is kept away from zero pivots. Values are relative to the
@@ -148,6 +183,32 @@ impl SymbolicSystem {
     /// [`SolveError::Factorization`] when faer's symbolic phase fails (out of memory or a
     /// structurally singular pattern).
     pub fn analyse(pattern: &SystemPattern, kind: SolverKind) -> Result<Self, SolveError> {
+        Self::analyse_ordered(pattern, kind, None)
+    }
+
+    /// Like [`SymbolicSystem::analyse`], with the fill-reducing permutation of the `LDLᵀ`
+    /// given (`perm[k]` = the unknown eliminated `k`-th, e.g. from
+    /// [`super::ordering::nested_dissection`]) instead of AMD; the LU ignores it (faer's LU
+    /// always orders with COLAMD).
+    ///
+    /// # Errors
+    /// As [`SymbolicSystem::analyse`]; [`SolveError::Factorization`] when `perm` is not a
+    /// permutation of the unknowns.
+    pub fn analyse_ordered(
+        pattern: &SystemPattern,
+        kind: SolverKind,
+        perm: Option<&[usize]>,
+    ) -> Result<Self, SolveError> {
+        let inverse = match perm {
+            Some(p) => Some(inverse_permutation(p, pattern.n())?),
+            None => None,
+        };
+        let ordering = match (perm, &inverse) {
+            (Some(fwd), Some(inv)) => {
+                SymmetricOrdering::Custom(PermRef::new_checked(fwd, inv, fwd.len()))
+            }
+            _ => SymmetricOrdering::Amd,
+        };
         let fail = |e: faer::sparse::FaerError| SolveError::Factorization {
             stage: "symbolic",
             reason: format!("{e:?}"),
@@ -157,7 +218,7 @@ impl SymbolicSystem {
                 factorize_symbolic_cholesky(
                     pattern.symbolic(),
                     Side::Lower,
-                    SymmetricOrdering::Amd,
+                    ordering,
                     CholeskySymbolicParams::default(),
                 )
                 .map_err(fail)?,
@@ -333,8 +394,11 @@ impl SymbolicSystem {
         }
     }
 
-    /// Overwrites `rhs` with `A⁻¹ rhs` using the factor.
-    fn apply_inverse(&self, factor: &NumericFactor, rhs: &mut [f64], parallelism: Parallelism) {
+    /// Overwrites `rhs` with `A⁻¹ rhs` using the factor (one solve, no refinement).
+    ///
+    /// # Panics
+    /// When `factor` was not produced by this symbolic system (a programming error).
+    pub fn apply_inverse(&self, factor: &NumericFactor, rhs: &mut [f64], parallelism: Parallelism) {
         let par = faer_par(parallelism);
         let n = rhs.len();
         let rhs = MatMut::from_column_major_slice_mut(rhs, n, 1);
@@ -386,6 +450,25 @@ fn shift_pressure_diagonal(pattern: &SystemPattern, values: &[f64], shift: f64) 
         out[pattern.diagonal_position(d)] += shift;
     }
     out
+}
+
+/// The inverse of the permutation `perm` of `0..n`.
+fn inverse_permutation(perm: &[usize], n: usize) -> Result<Vec<usize>, SolveError> {
+    let bad = || SolveError::Factorization {
+        stage: "symbolic",
+        reason: format!("the ordering is not a permutation of the {n} unknowns"),
+    };
+    if perm.len() != n {
+        return Err(bad());
+    }
+    let mut inverse = vec![usize::MAX; n];
+    for (k, &p) in perm.iter().enumerate() {
+        if p >= n || inverse[p] != usize::MAX {
+            return Err(bad());
+        }
+        inverse[p] = k;
+    }
+    Ok(inverse)
 }
 
 fn numeric_failure(reason: String) -> SolveError {

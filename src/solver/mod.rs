@@ -24,8 +24,10 @@
 //! **Invariant:** no I/O; progress and measurements leave through [`SolveInfo`].
 
 pub mod boundary;
+pub mod krylov;
 pub mod linear;
 pub mod navier_stokes;
+pub mod ordering;
 pub mod unsteady;
 
 use std::time::{Duration, Instant};
@@ -42,7 +44,8 @@ use crate::mesh::Mesh;
 
 pub use boundary::{BoundaryConstraints, BoundaryFlux, boundary_flux, resolve_boundary};
 pub use linear::{
-    LinearParams, NumericFactor, RefinementInfo, Regularization, SolverKind, SymbolicSystem,
+    FillOrdering, LinearParams, NonsymmetricSolver, NumericFactor, RefinementInfo, Regularization,
+    SolverKind, SymbolicSystem,
 };
 pub use navier_stokes::{
     NewtonError, NewtonInfo, NewtonIteration, NewtonParams, solve_steady_navier_stokes,
@@ -92,6 +95,10 @@ pub(crate) fn body_force_at(force: Option<&[ScalarExpr; 2]>, time: f64) -> Optio
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct SolverParams {
     pub kind: SolverKind,
+    /// Solver of the nonsymmetric Newton / Oseen systems.
+    pub nonsymmetric: NonsymmetricSolver,
+    /// Fill-reducing ordering of the `LDLᵀ`.
+    pub ordering: FillOrdering,
     pub regularization: Regularization,
     /// Parallelism of the assembly of local matrices.
     pub parallelism: Parallelism,
@@ -114,6 +121,8 @@ impl Default for SolverParams {
         let linear = LinearParams::default();
         SolverParams {
             kind: linear.kind,
+            nonsymmetric: NonsymmetricSolver::default(),
+            ordering: FillOrdering::default(),
             regularization: linear.regularization,
             parallelism: Parallelism::Rayon,
             factor_parallelism: Parallelism::Serial,
@@ -231,7 +240,7 @@ pub fn solve_stokes(
 
     let linear = params.linear();
     let start = Instant::now();
-    let symbolic = SymbolicSystem::analyse(&pattern, linear.kind)?;
+    let symbolic = analyse_for_mesh(&pattern, mesh, linear.kind, params.ordering)?;
     timings.symbolic = start.elapsed();
     let start = Instant::now();
     let factor = symbolic.factorize(&pattern, &system.values, &linear)?;
@@ -254,6 +263,26 @@ pub fn solve_stokes(
         boundary_flux: flux,
     };
     Ok((field, info))
+}
+
+/// The symbolic analysis of `pattern` for `kind`, with the `LDLᵀ` ordered by `ordering`
+/// (nested dissection of `mesh`, or AMD).
+///
+/// # Errors
+/// As [`SymbolicSystem::analyse`].
+pub fn analyse_for_mesh(
+    pattern: &SystemPattern,
+    mesh: &Mesh,
+    kind: SolverKind,
+    ordering: FillOrdering,
+) -> Result<SymbolicSystem, SolveError> {
+    match (kind, ordering) {
+        (SolverKind::Ldlt, FillOrdering::NestedDissection) => {
+            let perm = ordering::nested_dissection(mesh, pattern.dofs());
+            SymbolicSystem::analyse_ordered(pattern, kind, Some(&perm))
+        }
+        _ => SymbolicSystem::analyse(pattern, kind),
+    }
 }
 
 /// Validates the problem and builds the dof numbering and sparsity pattern (full velocity

@@ -9,8 +9,11 @@
 //! the linearised system around the current iterate `w` (see [`crate::fem::convection`]):
 //! Newton `[K + n'(w)] u = f + N(w)`, Picard `[K + n(w; ·)] u = f`, both solved for the new
 //! iterate `u` directly, with Dirichlet values eliminated as in the Stokes solver. The matrix
-//! is nonsymmetric, so the linear solves use LU; the symbolic analysis is done once for the
-//! pattern and the numeric factor storage is reused by every step.
+//! is nonsymmetric: by default it is solved by GMRES preconditioned with the `LDLᵀ` of the
+//! Stokes matrix of the same viscosity (factorised once per viscosity), started from the
+//! current iterate ([`super::krylov`]); the LU override
+//! ([`NonsymmetricSolver::Lu`]) factorises it directly. Either way the symbolic analysis is
+//! done once for the pattern and the numeric factor storage is reused by every step.
 //!
 //! **Stopping test.** The nonlinear residual of the iterate `w` on the free unknowns is
 //! `R(w) = J(w) w − b(w)` from the system assembled at `w` (both linearisations give the true
@@ -36,8 +39,16 @@ use crate::fem::kernels::stokes_local_system;
 use crate::fem::shape::AffineTriangle;
 use crate::mesh::Mesh;
 
-use super::linear::{LinearParams, NumericFactor, SolverKind, SymbolicSystem};
+use super::krylov::{GmresParams, PreconditionedGmres};
+use super::linear::{
+    FillOrdering, LinearParams, NonsymmetricSolver, NumericFactor, SolverKind, SymbolicSystem,
+};
 use super::{SolveError, SolverParams, StageTimings, StokesProblem, build_pattern, expand_field};
+
+/// Forcing term of the inexact Newton steps with GMRES: the linear residual is at most this
+/// fraction of the nonlinear residual (keeps the quadratic phase down to `FORCING`; see
+/// S.C. Eisenstat, H.F. Walker, SIAM J. Sci. Comput. 17 (1996) 16–32, from memory).
+const FORCING: f64 = 1e-4;
 
 /// Settings of the nonlinear iteration. Defaults: no Picard steps, at most 30 iterations,
 /// residual tolerance `1e-10`, no continuation (intermediate tolerance `1e-4`).
@@ -97,6 +108,8 @@ pub struct NewtonIteration {
     pub residual: f64,
     /// `‖u − w‖₂ / ‖u‖₂` of the step's update (free unknowns).
     pub update: f64,
+    /// GMRES iterations of the step's linear solve (0 with the LU).
+    pub linear_iterations: usize,
 }
 
 /// What a steady Navier–Stokes solve did.
@@ -166,21 +179,22 @@ pub fn solve_steady_navier_stokes(
     let start = Instant::now();
     let (pattern, _flux) = build_pattern(mesh, problem, params)?;
     timings.pattern = start.elapsed();
-    let linear = LinearParams { kind: SolverKind::Lu, ..params.linear() };
     let start = Instant::now();
-    let symbolic = SymbolicSystem::analyse(&pattern, SolverKind::Lu)?;
+    let method = NewtonLinear::analyse(&pattern, params)?;
     timings.symbolic = start.elapsed();
 
     let mut solver = NewtonSolver {
         mesh,
         problem,
         pattern: &pattern,
-        symbolic: &symbolic,
-        linear,
+        method,
         parallelism: params.parallelism,
+        ordering: params.ordering,
         system: AssembledSystem { values: Vec::new(), rhs: Vec::new(), dropped_entries: 0 },
-        factor: None,
         timings,
+        linear_iterations: 0,
+        viscosity: problem.viscosity,
+        convecting: false,
     };
     let mut x = solver.linear_step(problem.viscosity, None, Linearisation::Picard)?;
     let scale = norm(&solver.system.rhs).max(f64::MIN_POSITIVE);
@@ -213,13 +227,17 @@ pub fn solve_steady_navier_stokes(
             if k == newton.max_iterations || !residual.is_finite() {
                 break;
             }
-            let x_new = solver.factor_and_solve()?;
+            // Inexact Newton: the linear residual need only be a small fraction of the
+            // nonlinear one, but well below the final tolerance so it never limits it.
+            let linear_target = (FORCING * residual).max(0.01 * newton.residual_tolerance) * scale;
+            let x_new = solver.factor_and_solve(&x, linear_target)?;
             let update = distance(&x_new, &x) / norm(&x_new).max(f64::MIN_POSITIVE);
             info.iterations.push(NewtonIteration {
                 viscosity,
                 newton: kind == Linearisation::Newton,
                 residual,
                 update,
+                linear_iterations: solver.linear_iterations,
             });
             x = x_new;
         }
@@ -238,17 +256,74 @@ pub fn solve_steady_navier_stokes(
     Ok((expand_field(mesh, pattern.dofs(), &x), info))
 }
 
+/// The linear solver of the Newton steps, analysed once for the pattern.
+enum NewtonLinear {
+    /// LU of every matrix.
+    Lu { symbolic: Box<SymbolicSystem>, factor: Option<NumericFactor>, linear: LinearParams },
+    /// GMRES around a factorisation of an earlier matrix (see [`NonsymmetricSolver`]).
+    Krylov { solver: Box<PreconditionedGmres>, linear: LinearParams, kind: Preconditioner },
+}
+
+/// What the GMRES preconditioner of [`NewtonLinear::Krylov`] factorises.
+enum Preconditioner {
+    /// The LU of the last matrix that GMRES could not solve within [`REUSE_BUDGET`]
+    /// iterations; `current` is false while the factor is the Stokes matrix's of the first
+    /// step (then the next matrix is factorised straight away).
+    ReusedLu { current: bool },
+    /// The `LDLᵀ` of the Stokes matrix at `viscosity`, assembled into `stokes`.
+    Stokes { viscosity: Option<f64>, stokes: AssembledSystem },
+}
+
+/// GMRES iterations tried with a reused LU before the current matrix is factorised.
+const REUSE_BUDGET: usize = 12;
+
+impl NewtonLinear {
+    fn analyse(pattern: &SystemPattern, params: &SolverParams) -> Result<Self, SolveError> {
+        let lu = LinearParams { kind: SolverKind::Lu, ..params.linear() };
+        Ok(match params.nonsymmetric {
+            NonsymmetricSolver::Lu => NewtonLinear::Lu {
+                symbolic: Box::new(SymbolicSystem::analyse(pattern, SolverKind::Lu)?),
+                factor: None,
+                linear: lu,
+            },
+            NonsymmetricSolver::GmresReusedLu => NewtonLinear::Krylov {
+                solver: Box::new(PreconditionedGmres::analyse(pattern, SolverKind::Lu)?),
+                linear: lu,
+                kind: Preconditioner::ReusedLu { current: false },
+            },
+            NonsymmetricSolver::GmresStokes => NewtonLinear::Krylov {
+                solver: Box::new(PreconditionedGmres::analyse(pattern, SolverKind::Ldlt)?),
+                linear: LinearParams { kind: SolverKind::Ldlt, ..params.linear() },
+                kind: Preconditioner::Stokes {
+                    viscosity: None,
+                    stokes: AssembledSystem {
+                        values: Vec::new(),
+                        rhs: Vec::new(),
+                        dropped_entries: 0,
+                    },
+                },
+            },
+        })
+    }
+}
+
 /// The state shared by the linear steps of one nonlinear solve.
 struct NewtonSolver<'a> {
     mesh: &'a Mesh,
     problem: &'a StokesProblem<'a>,
     pattern: &'a SystemPattern,
-    symbolic: &'a SymbolicSystem,
-    linear: LinearParams,
+    method: NewtonLinear,
     parallelism: Parallelism,
+    /// Ordering of the `LDLᵀ` of the Stokes start.
+    ordering: FillOrdering,
     system: AssembledSystem,
-    factor: Option<NumericFactor>,
     timings: StageTimings,
+    /// GMRES iterations of the last linear solve.
+    linear_iterations: usize,
+    /// Viscosity of the assembled system.
+    viscosity: f64,
+    /// Whether the assembled system has a convecting field (false for the Stokes start).
+    convecting: bool,
 }
 
 impl NewtonSolver<'_> {
@@ -260,29 +335,23 @@ impl NewtonSolver<'_> {
         kind: Linearisation,
     ) -> Result<(), SolveError> {
         let start = Instant::now();
-        let (mesh, problem) = (self.mesh, self.problem);
-        let force_closure = super::body_force_at(problem.body_force, problem.time);
-        let force = force_closure.as_deref();
-        assemble_into(self.pattern, mesh, self.parallelism, &mut self.system, |cell, local| {
-            let tri = AffineTriangle::new(mesh.cell_vertices(cell));
-            stokes_local_system(&tri, viscosity, problem.viscous_form, force, local);
-            if let Some(w) = w {
-                let nodes = &mesh.cells[cell];
-                let nodal: [[f64; 2]; 6] = std::array::from_fn(|k| w.velocity[nodes[k]]);
-                add_linearised_convection(&tri, &nodal, kind, local);
-            }
-        });
+        assemble_linearised(
+            self.pattern,
+            self.mesh,
+            self.problem,
+            self.parallelism,
+            viscosity,
+            w,
+            kind,
+            &mut self.system,
+        )?;
         self.timings.assembly += start.elapsed();
-        if self.system.dropped_entries > 0 {
-            return Err(SolveError::PatternMismatch { dropped: self.system.dropped_entries });
-        }
-        if self.system.rhs.iter().any(|v| !v.is_finite()) {
-            return Err(SolveError::NonFiniteBodyForce);
-        }
+        self.viscosity = viscosity;
+        self.convecting = w.is_some();
         Ok(())
     }
 
-    /// Assembles around `w` and solves for the next iterate.
+    /// Assembles around `w` and solves for the next iterate (from zero).
     fn linear_step(
         &mut self,
         viscosity: f64,
@@ -290,25 +359,145 @@ impl NewtonSolver<'_> {
         kind: Linearisation,
     ) -> Result<Vec<f64>, SolveError> {
         self.assemble(viscosity, w, kind)?;
-        self.factor_and_solve()
+        let reused_lu = matches!(
+            self.method,
+            NewtonLinear::Krylov { kind: Preconditioner::ReusedLu { .. }, .. }
+        );
+        if w.is_none() && reused_lu {
+            return self.symmetric_solve();
+        }
+        let start = vec![0.0; self.pattern.n()];
+        let target = self.linear_target_of_rhs();
+        self.factor_and_solve(&start, target)
     }
 
-    /// Factorises the assembled matrix (reusing the factor storage) and solves.
-    fn factor_and_solve(&mut self) -> Result<Vec<f64>, SolveError> {
+    /// Solves the assembled symmetric (Stokes) system by the ordered `LDLᵀ`, whose factor is
+    /// dropped afterwards: cheaper than an LU of the Stokes matrix that GMRES around a reused
+    /// LU would never use again.
+    fn symmetric_solve(&mut self) -> Result<Vec<f64>, SolveError> {
+        let NewtonLinear::Krylov { linear, .. } = &self.method else {
+            unreachable!("called for the Krylov method only")
+        };
+        let linear = LinearParams { kind: SolverKind::Ldlt, ..*linear };
+        let (pattern, values, rhs) = (self.pattern, &self.system.values, &self.system.rhs);
         let start = Instant::now();
-        let values = &self.system.values;
-        match &mut self.factor {
-            Some(f) => self.symbolic.refactorize(self.pattern, values, &self.linear, f)?,
-            None => {
-                self.factor = Some(self.symbolic.factorize(self.pattern, values, &self.linear)?)
-            }
-        }
+        let symbolic =
+            super::analyse_for_mesh(pattern, self.mesh, SolverKind::Ldlt, self.ordering)?;
+        self.timings.symbolic += start.elapsed();
+        let start = Instant::now();
+        let factor = symbolic.factorize(pattern, values, &linear)?;
         self.timings.numeric += start.elapsed();
         let start = Instant::now();
-        let factor = self.factor.as_ref().expect("factorised above");
-        let (x, _) =
-            self.symbolic.solve(self.pattern, values, factor, &self.system.rhs, &self.linear)?;
+        let (x, _) = symbolic.solve(pattern, values, &factor, rhs, &linear)?;
         self.timings.solve += start.elapsed();
+        self.linear_iterations = 0;
+        Ok(x)
+    }
+
+    /// `residual_target · ‖b‖`: the direct solvers' target for the assembled system.
+    fn linear_target_of_rhs(&self) -> f64 {
+        let linear = match &self.method {
+            NewtonLinear::Lu { linear, .. } | NewtonLinear::Krylov { linear, .. } => linear,
+        };
+        linear.residual_target * norm(&self.system.rhs)
+    }
+
+    /// Solves the assembled system: LU (factor storage reused, refined to the relative
+    /// residual target), or GMRES started from `guess` (the current iterate) with the
+    /// Stokes preconditioner until `‖b − J x‖₂ ≤ target`.
+    fn factor_and_solve(&mut self, guess: &[f64], target: f64) -> Result<Vec<f64>, SolveError> {
+        let (values, rhs) = (&self.system.values, &self.system.rhs);
+        match &mut self.method {
+            NewtonLinear::Lu { symbolic, factor, linear } => {
+                let start = Instant::now();
+                match factor {
+                    Some(f) => symbolic.refactorize(self.pattern, values, linear, f)?,
+                    None => *factor = Some(symbolic.factorize(self.pattern, values, linear)?),
+                }
+                self.timings.numeric += start.elapsed();
+                let start = Instant::now();
+                let f = factor.as_ref().expect("factorised above");
+                let (x, _) = symbolic.solve(self.pattern, values, f, rhs, linear)?;
+                self.timings.solve += start.elapsed();
+                self.linear_iterations = 0;
+                Ok(x)
+            }
+            NewtonLinear::Krylov { .. } => self.gmres_solve(guess, target),
+        }
+    }
+
+    /// GMRES on the assembled system from `guess` until `‖b − J x‖₂ ≤ target`, with the
+    /// preconditioner refreshed as [`Preconditioner`] describes.
+    fn gmres_solve(&mut self, guess: &[f64], target: f64) -> Result<Vec<f64>, SolveError> {
+        let NewtonLinear::Krylov { solver, linear, kind } = &mut self.method else {
+            unreachable!("called for the Krylov method only")
+        };
+        let (pattern, values, rhs) = (self.pattern, &self.system.values, &self.system.rhs);
+        let norm_b = norm(rhs).max(f64::MIN_POSITIVE);
+        let full = GmresParams { relative_tolerance: target / norm_b, ..GmresParams::default() };
+        let mut x = guess.to_vec();
+        let mut numeric = std::time::Duration::ZERO;
+        let mut iterations;
+        let start = Instant::now();
+        match kind {
+            Preconditioner::ReusedLu { current } => {
+                let stale = !*current || !solver.has_factor();
+                let reused = if stale {
+                    None
+                } else {
+                    let budget = GmresParams { max_iterations: REUSE_BUDGET, ..full };
+                    Some(solver.solve(pattern, values, rhs, &mut x, &budget, linear.parallelism))
+                };
+                match reused {
+                    Some(Ok(info)) => iterations = info.iterations,
+                    Some(Err(SolveError::NotConverged { .. })) | None => {
+                        iterations = reused.map_or(0, |_| REUSE_BUDGET);
+                        let clock = Instant::now();
+                        solver.factorize_preconditioner(pattern, values, linear)?;
+                        numeric = clock.elapsed();
+                        let info = solver.solve(
+                            pattern,
+                            values,
+                            rhs,
+                            &mut x,
+                            &full,
+                            linear.parallelism,
+                        )?;
+                        iterations += info.iterations;
+                        // The factor of the Stokes system (no convecting field yet) is not
+                        // worth trying on the first Newton matrix.
+                        *current = self.convecting;
+                    }
+                    Some(Err(e)) => return Err(e),
+                }
+            }
+            Preconditioner::Stokes { viscosity, stokes } => {
+                if *viscosity != Some(self.viscosity) {
+                    let clock = Instant::now();
+                    let (mesh, problem, par) = (self.mesh, self.problem, self.parallelism);
+                    let pic = Linearisation::Picard;
+                    assemble_linearised(
+                        pattern,
+                        mesh,
+                        problem,
+                        par,
+                        self.viscosity,
+                        None,
+                        pic,
+                        stokes,
+                    )?;
+                    solver.factorize_preconditioner(pattern, &stokes.values, linear)?;
+                    numeric = clock.elapsed();
+                    *viscosity = Some(self.viscosity);
+                }
+                iterations = solver
+                    .solve(pattern, values, rhs, &mut x, &full, linear.parallelism)?
+                    .iterations;
+            }
+        }
+        self.timings.numeric += numeric;
+        self.timings.solve += start.elapsed() - numeric;
+        self.linear_iterations = iterations;
         Ok(x)
     }
 
@@ -318,6 +507,39 @@ impl NewtonSolver<'_> {
         self.pattern.multiply(&self.system.values, x, &mut ax);
         ax.iter().zip(&self.system.rhs).map(|(a, b)| (a - b) * (a - b)).sum::<f64>().sqrt()
     }
+}
+
+/// Assembles into `system` the Navier–Stokes system at `viscosity` linearised around `w`
+/// (the Stokes system when `w` is `None`).
+#[allow(clippy::too_many_arguments)]
+fn assemble_linearised(
+    pattern: &SystemPattern,
+    mesh: &Mesh,
+    problem: &StokesProblem,
+    parallelism: Parallelism,
+    viscosity: f64,
+    w: Option<&FlowField>,
+    kind: Linearisation,
+    system: &mut AssembledSystem,
+) -> Result<(), SolveError> {
+    let force_closure = super::body_force_at(problem.body_force, problem.time);
+    let force = force_closure.as_deref();
+    assemble_into(pattern, mesh, parallelism, system, |cell, local| {
+        let tri = AffineTriangle::new(mesh.cell_vertices(cell));
+        stokes_local_system(&tri, viscosity, problem.viscous_form, force, local);
+        if let Some(w) = w {
+            let nodes = &mesh.cells[cell];
+            let nodal: [[f64; 2]; 6] = std::array::from_fn(|k| w.velocity[nodes[k]]);
+            add_linearised_convection(&tri, &nodal, kind, local);
+        }
+    });
+    if system.dropped_entries > 0 {
+        return Err(SolveError::PatternMismatch { dropped: system.dropped_entries });
+    }
+    if system.rhs.iter().any(|v| !v.is_finite()) {
+        return Err(SolveError::NonFiniteBodyForce);
+    }
+    Ok(())
 }
 
 fn norm(v: &[f64]) -> f64 {

@@ -237,7 +237,8 @@ impl<'a> ImexStepper<'a> {
         };
         let (pattern, _) = build_pattern(mesh, &stokes, &params.solver)?;
         let linear = params.solver.linear();
-        let symbolic = SymbolicSystem::analyse(&pattern, linear.kind)?;
+        let symbolic =
+            super::analyse_for_mesh(&pattern, mesh, linear.kind, params.solver.ordering)?;
         let matrix = super::assemble_stokes(&pattern, mesh, &stokes, params.solver.parallelism)?;
         let (current, factor) = match initial {
             Some(field) => (field, NumericFactor::placeholder()),
@@ -300,6 +301,11 @@ impl<'a> ImexStepper<'a> {
     /// Number of unknowns of the linear system.
     pub fn n_unknowns(&self) -> usize {
         self.pattern.n()
+    }
+
+    /// Stored entries of the `LDLᵀ` factor of the step matrix (`None` with LU).
+    pub fn factor_entries(&self) -> Option<usize> {
+        self.symbolic.factor_entries()
     }
 
     /// Time spent per stage so far.
