@@ -24,8 +24,9 @@ pub enum Command {
     Corners(CornersArgs),
     /// Run built-in validation cases and compare with published reference values.
     Validate(ValidateArgs),
-    /// Mesh-convergence study: solve on a sequence of uniformly refined meshes and report
-    /// errors (or differences between levels), observed rates and extrapolated forces.
+    /// Mesh-convergence study: solve on a sequence of uniform, graded or adaptive meshes and
+    /// report errors (or level differences), the error estimator, observed rates, regularity
+    /// indices and extrapolated forces.
     Study(StudyArgs),
     /// Regression check: run a case and compare its forces and exponents with a baseline.
     Check(CheckArgs),
@@ -59,8 +60,8 @@ pub struct StudyArgs {
     /// The case file (TOML); a steady case.
     #[arg(value_name = "CASE")]
     pub case: PathBuf,
-    /// Number of meshes: the case's mesh and `N − 1` uniform refinements (each splits every
-    /// triangle into four).
+    /// Number of meshes: the case's mesh and `N − 1` refinements (adaptive studies need many
+    /// levels, e.g. 20–30, since each adds only the marked triangles).
     #[arg(long, value_name = "N", default_value_t = 4)]
     pub levels: usize,
     /// How the meshes are made: `uniform` (nested, every triangle split into four), `graded`
