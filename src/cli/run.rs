@@ -67,16 +67,32 @@ pub fn run(args: &RunArgs) -> anyhow::Result<()> {
         return run_unsteady(&case, &mesh, &setup);
     }
     let clock = Instant::now();
-    let (field, solver) = match case.model.equations {
-        Equations::Stokes => {
-            let (field, info) = solve_steady_stokes(&case, &mesh, args)?;
-            if let Some(dir) = &args.export_system {
-                super::export::export_system(dir, &case, &mesh, args.linear_solver, &info)?;
+    // The stream function's matrix depends on the mesh only: it is factorised on a second
+    // thread while the flow is solved (the sequential sparse factorisation leaves one core
+    // idle). Measured on the 1M-unknown default case: 13.3–13.7 s wall before, 10.0–10.6 s
+    // after; writing mesh.vtu on that thread as well was no faster (memory contention).
+    let (solved, psi_solver) = std::thread::scope(|scope| {
+        let prepare =
+            case.output.solution.then(|| scope.spawn(|| post::StreamFunctionSolver::new(&mesh)));
+        let solved = match case.model.equations {
+            Equations::Stokes => {
+                solve_steady_stokes(&case, &mesh, args).and_then(|(field, info)| {
+                    if let Some(dir) = &args.export_system {
+                        super::export::export_system(dir, &case, &mesh, args.linear_solver, &info)?;
+                    }
+                    Ok((field, solver_json(&info)))
+                })
             }
-            (field, solver_json(&info))
-        }
-        Equations::NavierStokes => solve_steady_navier_stokes_stage(&case, &mesh, &out, args)?,
-    };
+            Equations::NavierStokes => solve_steady_navier_stokes_stage(&case, &mesh, &out, args),
+        };
+        let psi_solver = prepare.map(|handle| {
+            handle.join().unwrap_or_else(|_| {
+                Err(post::PostError::StreamFunction { reason: "its thread panicked".into() })
+            })
+        });
+        (solved, psi_solver)
+    });
+    let (field, solver) = solved?;
     let solve_time = clock.elapsed();
     let clock = Instant::now();
     let measured = measure_singular_corners(&case.domain, &mesh, &field, &corners.reports);
@@ -87,7 +103,7 @@ pub fn run(args: &RunArgs) -> anyhow::Result<()> {
     let forces = report_forces(&case, &mesh, &field, convecting, &out)?;
     let post_time = clock.elapsed();
     let clock = Instant::now();
-    write_solution(&case, &mesh, &field, &out)?;
+    write_solution(&case, &mesh, &field, psi_solver, &out)?;
     let output_time = clock.elapsed();
     let summary = json!({
         "case": case.name,
@@ -345,13 +361,24 @@ fn report_forces(
     Ok(Value::Array(parts))
 }
 
-fn write_solution(case: &Case, mesh: &Mesh, field: &FlowField, out: &Path) -> anyhow::Result<()> {
+/// Writes `solution.vtu`, with the stream function from the prepared solver when there is one.
+fn write_solution(
+    case: &Case,
+    mesh: &Mesh,
+    field: &FlowField,
+    psi_solver: Option<Result<post::StreamFunctionSolver, post::PostError>>,
+    out: &Path,
+) -> anyhow::Result<()> {
     if !case.output.solution {
         return Ok(());
     }
     let stage = Stage::start("output", "derived fields and solution.vtu");
     let path = out.join("solution.vtu");
-    write_field_vtu(case, mesh, field, &path)?;
+    let psi = match psi_solver {
+        Some(solver) => solver?.solve(mesh, field)?,
+        None => post::stream_function(mesh, field)?,
+    };
+    write_vtu_with_psi(case, mesh, field, &psi, &path, &[])?;
     stage.done(&format!("wrote {}", path.display()));
     Ok(())
 }
@@ -375,8 +402,20 @@ pub fn write_field_vtu_with(
     path: &Path,
     extra_cell_fields: &[CellField],
 ) -> anyhow::Result<()> {
-    let derived = post::derived_fields(mesh, field)?;
     let psi = post::stream_function(mesh, field)?;
+    write_vtu_with_psi(case, mesh, field, &psi, path, extra_cell_fields)
+}
+
+/// [`write_field_vtu_with`] for a stream function computed by the caller.
+pub fn write_vtu_with_psi(
+    case: &Case,
+    mesh: &Mesh,
+    field: &FlowField,
+    psi: &[f64],
+    path: &Path,
+    extra_cell_fields: &[CellField],
+) -> anyhow::Result<()> {
+    let derived = post::derived_fields(mesh, field)?;
     let density = case.fluid.density;
     let pressure: Vec<f64> = derived.pressure.iter().map(|p| p * density).collect();
     let tags = boundary_part_per_node(mesh);
@@ -389,7 +428,7 @@ pub fn write_field_vtu_with(
             PointField::Scalar("pressure", &pressure),
             PointField::Scalar("speed", &derived.speed),
             PointField::Scalar("vorticity", &derived.vorticity),
-            PointField::Scalar("stream_function", &psi),
+            PointField::Scalar("stream_function", psi),
             PointField::Integer("boundary_part", &tags),
         ],
         &[

@@ -38,7 +38,7 @@ use super::args::RunArgs;
 use super::progress::Stage;
 use super::run::{
     fill_ordering, mesh_json, model_name, peak_memory_bytes, solve_error, solver_kind,
-    write_field_vtu,
+    write_field_vtu, write_vtu_with_psi,
 };
 
 /// What the steady part of `run` has prepared for the time loop.
@@ -193,6 +193,9 @@ struct History<'a> {
     locator: Option<PointLocator<'a>>,
     samples: Vec<Sample>,
     pvd: Vec<(f64, String)>,
+    /// The stream function's factorised matrix, built at the first write and reused (the mesh
+    /// does not change, so every later write pays only a right-hand side and two solves).
+    psi_solver: Option<cornerflow::post::StreamFunctionSolver>,
     post_time: Duration,
     output_time: Duration,
 }
@@ -208,6 +211,7 @@ impl<'a> History<'a> {
             locator,
             samples: Vec::new(),
             pvd: Vec::new(),
+            psi_solver: None,
             post_time: Duration::ZERO,
             output_time: Duration::ZERO,
         })
@@ -269,7 +273,13 @@ impl<'a> History<'a> {
         std::fs::create_dir_all(&dir)
             .with_context(|| format!("creating the output folder {}", dir.display()))?;
         let name = format!("fields/solution-{step:06}.vtu");
-        write_field_vtu(case, mesh, stepper.field(), &self.out.join(&name))?;
+        let solver = match self.psi_solver.take() {
+            Some(solver) => solver,
+            None => cornerflow::post::StreamFunctionSolver::new(mesh)?,
+        };
+        let psi = solver.solve(mesh, stepper.field())?;
+        self.psi_solver = Some(solver);
+        write_vtu_with_psi(case, mesh, stepper.field(), &psi, &self.out.join(&name), &[])?;
         self.pvd.push((stepper.time(), name));
         write_pvd(&self.out.join("solution.pvd"), &self.pvd)?;
         self.output_time += clock.elapsed();

@@ -49,7 +49,7 @@ pub use probe::{PointLocator, PointValue, evaluate_in_cell, locate};
 pub use series::{
     SignalStats, shedding_frequency, signal_stats, strouhal_number, upward_crossings,
 };
-pub use streamfunction::stream_function;
+pub use streamfunction::{StreamFunctionSolver, stream_function};
 pub use wall::{WallReference, WallRow, wall_distribution};
 
 use crate::fem::shape::{AffineTriangle, p2_gradients, p2_values};

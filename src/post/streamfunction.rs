@@ -18,7 +18,8 @@ use faer::dyn_stack::{MemBuffer, MemStack};
 use faer::linalg::cholesky::llt::factor::LltRegularization;
 use faer::perm::PermRef;
 use faer::sparse::linalg::cholesky::{
-    CholeskySymbolicParams, LltRef, SymmetricOrdering, factorize_symbolic_cholesky,
+    CholeskySymbolicParams, LltRef, SymbolicCholesky, SymmetricOrdering,
+    factorize_symbolic_cholesky,
 };
 use faer::sparse::{SparseColMat, SparseColMatRef, Triplet};
 use faer::{Conj, MatMut, Par, Side};
@@ -39,53 +40,97 @@ use crate::mesh::dissection::node_order;
 /// (e.g. a mesh made of several disconnected pieces).
 pub fn stream_function(mesh: &Mesh, field: &FlowField) -> Result<Vec<f64>, PostError> {
     check_field(mesh, field)?;
-    let pieces = connected_pieces(mesh);
-    if pieces != 1 {
-        return Err(PostError::StreamFunction {
-            reason: format!("the mesh has {pieces} disconnected pieces; ψ needs one pin per piece"),
-        });
+    StreamFunctionSolver::new(mesh)?.solve(mesh, field)
+}
+
+/// The factorised stream-function matrix of a mesh. The matrix depends on the mesh only, so a
+/// caller can factorise it while the flow is being solved (e.g. on another core) and pay
+/// only a right-hand side and two triangular solves afterwards.
+pub struct StreamFunctionSolver {
+    /// Unknown index of every node; the pinned node has none.
+    dof: Vec<Option<usize>>,
+    symbolic: SymbolicCholesky<usize>,
+    l_values: Vec<f64>,
+}
+
+impl StreamFunctionSolver {
+    /// Assembles the pinned P2 stiffness matrix and factorises it (Cholesky in the mesh's
+    /// nested-dissection order: measured faster than AMD on the matrix graph).
+    ///
+    /// # Errors
+    /// [`PostError::StreamFunction`] for a disconnected mesh or a failed factorisation.
+    pub fn new(mesh: &Mesh) -> Result<Self, PostError> {
+        let pieces = connected_pieces(mesh);
+        if pieces != 1 {
+            return Err(PostError::StreamFunction {
+                reason: format!(
+                    "the mesh has {pieces} disconnected pieces; ψ needs one pin per piece"
+                ),
+            });
+        }
+        let pin = mesh.boundary_edges.first().map_or(0, |e| e.nodes[0]);
+        let dof: Vec<Option<usize>> = (0..mesh.nodes.len())
+            .map(|n| match n.cmp(&pin) {
+                std::cmp::Ordering::Less => Some(n),
+                std::cmp::Ordering::Equal => None,
+                std::cmp::Ordering::Greater => Some(n - 1),
+            })
+            .collect();
+        let n_dofs = mesh.nodes.len() - 1;
+        let triplets = stiffness(mesh, &dof);
+        let matrix =
+            SparseColMat::<usize, f64>::try_new_from_triplets(n_dofs, n_dofs, &triplets)
+                .map_err(|e| PostError::StreamFunction { reason: format!("assembly: {e:?}") })?;
+        let perm: Vec<usize> = node_order(mesh).into_iter().filter_map(|n| dof[n]).collect();
+        if perm.len() != n_dofs {
+            return Err(PostError::StreamFunction { reason: "a node lies in no cell".into() });
+        }
+        let mut inverse = vec![usize::MAX; n_dofs];
+        perm.iter().enumerate().for_each(|(k, &d)| inverse[d] = k);
+        let ordering = SymmetricOrdering::Custom(PermRef::new_checked(&perm, &inverse, n_dofs));
+        let (symbolic, l_values) = cholesky(matrix.as_ref(), ordering)
+            .map_err(|e| PostError::StreamFunction { reason: format!("cholesky: {e:?}") })?;
+        Ok(StreamFunctionSolver { dof, symbolic, l_values })
     }
-    let pin = mesh.boundary_edges.first().map_or(0, |e| e.nodes[0]);
-    // Unknown index of every node; the pinned node has none.
-    let dof: Vec<Option<usize>> = (0..mesh.nodes.len())
-        .map(|n| match n.cmp(&pin) {
-            std::cmp::Ordering::Less => Some(n),
-            std::cmp::Ordering::Equal => None,
-            std::cmp::Ordering::Greater => Some(n - 1),
-        })
-        .collect();
-    let n_dofs = mesh.nodes.len() - 1;
-    let (triplets, rhs) = assemble(mesh, field, &dof);
-    let matrix = SparseColMat::<usize, f64>::try_new_from_triplets(n_dofs, n_dofs, &triplets)
-        .map_err(|e| PostError::StreamFunction { reason: format!("assembly: {e:?}") })?;
-    let fail =
-        |e: &dyn std::fmt::Debug| PostError::StreamFunction { reason: format!("cholesky: {e:?}") };
-    // The mesh's nested-dissection order: measured faster than AMD on the matrix graph.
-    let perm: Vec<usize> = node_order(mesh).into_iter().filter_map(|n| dof[n]).collect();
-    let mut inverse = vec![usize::MAX; n_dofs];
-    perm.iter().enumerate().for_each(|(k, &d)| inverse[d] = k);
-    if perm.len() != n_dofs {
-        return Err(PostError::StreamFunction { reason: "a node lies in no cell".into() });
-    }
-    let ordering = SymmetricOrdering::Custom(PermRef::new_checked(&perm, &inverse, n_dofs));
-    let mut x: Vec<f64> = rhs[..n_dofs].to_vec();
-    cholesky_solve_in_place(matrix.as_ref(), ordering, &mut x).map_err(|e| fail(&e))?;
-    let psi: Vec<f64> = dof.iter().map(|d| d.map_or(0.0, |i| x[i])).collect();
-    match psi.iter().position(|v| !v.is_finite()) {
-        Some(node) => Err(PostError::StreamFunction {
-            reason: format!("non-finite value at node {node} (is the mesh connected?)"),
-        }),
-        None => Ok(psi),
+
+    /// `ψ` of `field` (one velocity per node of the mesh this solver was built for).
+    ///
+    /// # Errors
+    /// [`PostError`] when the field does not match the mesh, or
+    /// [`PostError::StreamFunction`] for non-finite values.
+    pub fn solve(&self, mesh: &Mesh, field: &FlowField) -> Result<Vec<f64>, PostError> {
+        check_field(mesh, field)?;
+        if self.dof.len() != mesh.nodes.len() {
+            return Err(PostError::StreamFunction {
+                reason: "the solver was built for another mesh".into(),
+            });
+        }
+        let n = mesh.nodes.len() - 1;
+        let mut x = load(mesh, field, &self.dof);
+        let par = Par::Seq;
+        let mut buf = MemBuffer::new(self.symbolic.solve_in_place_scratch::<f64>(1, par));
+        LltRef::new(&self.symbolic, &self.l_values).solve_in_place_with_conj(
+            Conj::No,
+            MatMut::from_column_major_slice_mut(&mut x, n, 1),
+            par,
+            MemStack::new(&mut buf),
+        );
+        let psi: Vec<f64> = self.dof.iter().map(|d| d.map_or(0.0, |i| x[i])).collect();
+        match psi.iter().position(|v| !v.is_finite()) {
+            Some(node) => Err(PostError::StreamFunction {
+                reason: format!("non-finite value at node {node} (is the mesh connected?)"),
+            }),
+            None => Ok(psi),
+        }
     }
 }
 
-/// Solves `A x = b` in place (`x` holds `b` on entry) by the sparse Cholesky factorisation of
-/// the symmetric positive definite `A` (lower triangle read) with the given ordering.
-fn cholesky_solve_in_place(
+/// The sparse Cholesky factorisation of the symmetric positive definite `A` (lower triangle
+/// read) with the given ordering: the symbolic structure and the factor's values.
+fn cholesky(
     matrix: SparseColMatRef<'_, usize, f64>,
     ordering: SymmetricOrdering<'_, usize>,
-    x: &mut [f64],
-) -> Result<(), Box<dyn std::fmt::Debug>> {
+) -> Result<(SymbolicCholesky<usize>, Vec<f64>), Box<dyn std::fmt::Debug>> {
     let boxed =
         |e: &dyn std::fmt::Debug| -> Box<dyn std::fmt::Debug> { Box::new(format!("{e:?}")) };
     let symbolic = factorize_symbolic_cholesky(
@@ -110,15 +155,7 @@ fn cholesky_solve_in_place(
             Default::default(),
         )
         .map_err(|e| boxed(&e))?;
-    let n = x.len();
-    let mut buf = MemBuffer::new(symbolic.solve_in_place_scratch::<f64>(1, par));
-    LltRef::new(&symbolic, &l_values).solve_in_place_with_conj(
-        Conj::No,
-        MatMut::from_column_major_slice_mut(x, n, 1),
-        par,
-        MemStack::new(&mut buf),
-    );
-    Ok(())
+    Ok((symbolic, l_values))
 }
 
 /// Number of connected pieces of the mesh (cells sharing a vertex are connected), by
@@ -144,22 +181,42 @@ fn connected_pieces(mesh: &Mesh) -> usize {
     (0..mesh.n_vertices).filter(|&v| used[v] && root(&mut parent, v) == v).count()
 }
 
-/// Stiffness triplets and right-hand side `(u, ∂φ/∂y) − (v, ∂φ/∂x)`.
-///
-/// A Dunavant degree-4 rule is exact: the stiffness integrand has degree 2, the right-hand
-/// side degree 3.
-#[allow(non_snake_case)]
-fn assemble(
-    mesh: &Mesh,
-    field: &FlowField,
-    dof: &[Option<usize>],
-) -> (Vec<Triplet<usize, usize, f64>>, Vec<f64>) {
+/// Stiffness triplets `(∇φ_i, ∇φ_j)` of the unknowns. A Dunavant degree-4 rule is exact (the
+/// integrand has degree 2).
+fn stiffness(mesh: &Mesh, dof: &[Option<usize>]) -> Vec<Triplet<usize, usize, f64>> {
     let mut triplets = Vec::with_capacity(36 * mesh.n_cells());
+    let rule = triangle_rule(4);
+    for (c, nodes) in mesh.cells.iter().enumerate() {
+        let tri = cell_triangle(mesh, c);
+        let mut k = [[0.0; 6]; 6];
+        for &(l, w) in rule.points {
+            let wq = w * tri.area;
+            let dphi = p2_gradients(l, &tri.grad_bary);
+            for i in 0..6 {
+                for j in 0..6 {
+                    k[i][j] += wq * (dphi[i][0] * dphi[j][0] + dphi[i][1] * dphi[j][1]);
+                }
+            }
+        }
+        for i in 0..6 {
+            let Some(di) = dof[nodes[i]] else { continue };
+            for j in 0..6 {
+                if let Some(dj) = dof[nodes[j]] {
+                    triplets.push(Triplet::new(di, dj, k[i][j]));
+                }
+            }
+        }
+    }
+    triplets
+}
+
+/// Right-hand side `(u, ∂φ/∂y) − (v, ∂φ/∂x)` of the unknowns (degree 3: the degree-4 rule is
+/// exact).
+fn load(mesh: &Mesh, field: &FlowField, dof: &[Option<usize>]) -> Vec<f64> {
     let mut rhs = vec![0.0; mesh.nodes.len().saturating_sub(1)];
     let rule = triangle_rule(4);
     for (c, nodes) in mesh.cells.iter().enumerate() {
         let tri = cell_triangle(mesh, c);
-        let mut K = [[0.0; 6]; 6];
         let mut b = [0.0; 6];
         for &(l, w) in rule.points {
             let wq = w * tri.area;
@@ -172,27 +229,46 @@ fn assemble(
             }
             for i in 0..6 {
                 b[i] += wq * (u[0] * dphi[i][1] - u[1] * dphi[i][0]);
-                for j in 0..6 {
-                    K[i][j] += wq * (dphi[i][0] * dphi[j][0] + dphi[i][1] * dphi[j][1]);
-                }
             }
         }
         for i in 0..6 {
-            let Some(di) = dof[nodes[i]] else { continue };
-            rhs[di] += b[i];
-            for j in 0..6 {
-                if let Some(dj) = dof[nodes[j]] {
-                    triplets.push(Triplet::new(di, dj, K[i][j]));
-                }
+            if let Some(di) = dof[nodes[i]] {
+                rhs[di] += b[i];
             }
         }
     }
-    (triplets, rhs)
+    rhs
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn one_factorisation_serves_several_fields_exactly() {
+        // ψ₁ = x² − y² and ψ₂ = xy lie in P2 and their curls (u, v) = (∂ψ/∂y, −∂ψ/∂x) =
+        // (−2y, −2x) and (x, −y) are interpolated exactly, so the least-squares ψ_h equals ψ
+        // up to the pinned constant (elementary calculus), from one factorisation for both.
+        let mesh =
+            crate::mesh::structured::rectangle([0.0, 0.0], [2.0, 1.0], 4, 3, |_, _| [0.0, 0.0])
+                .unwrap();
+        let psi_exact: [fn(f64, f64) -> f64; 2] = [|x, y| x * x - y * y, |x, y| x * y];
+        let curls: [fn(f64, f64) -> [f64; 2]; 2] = [|x, y| [-2.0 * y, -2.0 * x], |x, y| [x, -y]];
+        let solver = StreamFunctionSolver::new(&mesh).unwrap();
+        let pin = mesh.boundary_edges[0].nodes[0];
+        for (psi_of, curl) in psi_exact.iter().zip(curls) {
+            let field = FlowField {
+                velocity: mesh.nodes.iter().map(|p| curl(p[0], p[1])).collect(),
+                pressure: vec![0.0; mesh.n_vertices],
+            };
+            let psi = solver.solve(&mesh, &field).unwrap();
+            assert_eq!(psi, stream_function(&mesh, &field).unwrap());
+            let shift = psi_of(mesh.nodes[pin][0], mesh.nodes[pin][1]);
+            for (n, p) in mesh.nodes.iter().enumerate() {
+                assert!((psi[n] - (psi_of(p[0], p[1]) - shift)).abs() < 1e-11, "node {n}");
+            }
+        }
+    }
 
     #[test]
     fn disconnected_mesh_is_a_typed_error() {
