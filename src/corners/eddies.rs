@@ -197,7 +197,7 @@ fn detect_with(
     let bisector = corner_bisector(domain, report).ok_or(EddyError::NoBisector { corner })?;
     let mesh = walker.mesh;
     let far = nearest_corner_distance(reports, corner).unwrap_or(f64::INFINITY);
-    let r_far = params.max_fraction * far.min(bounding_diagonal(&mesh.nodes[..mesh.n_vertices]));
+    let r_far = params.max_fraction * far.min(super::measure::domain_diameter(mesh));
     let r_near = 0.25 * local_mesh_size(mesh, report.location);
     let profile =
         bisector_profile(walker, field, report.location, bisector, (r_near, r_far), params)
@@ -412,18 +412,6 @@ fn velocity_at(mesh: &Mesh, field: &FlowField, c: usize, l: [f64; 3]) -> [f64; 2
     u
 }
 
-/// Diagonal of the bounding box of `points`.
-fn bounding_diagonal(points: &[Point]) -> f64 {
-    let (mut lo, mut hi) = ([f64::INFINITY; 2], [f64::NEG_INFINITY; 2]);
-    for p in points {
-        for k in 0..2 {
-            lo[k] = lo[k].min(p[k]);
-            hi[k] = hi[k].max(p[k]);
-        }
-    }
-    (hi[0] - lo[0]).hypot(hi[1] - lo[1])
-}
-
 /// Barycentric tolerance for "inside" (as in the probe module; common practice, no source).
 const INSIDE_TOL: f64 = 1e-12;
 
@@ -480,13 +468,7 @@ impl<'m> Walker<'m> {
 
 /// Barycentric coordinates of `p` in cell `c`.
 fn barycentric(mesh: &Mesh, c: usize, p: Point) -> [f64; 3] {
-    let tri = AffineTriangle::new(mesh.cell_vertices(c));
-    let mut l = [0.0; 3];
-    for (i, li) in l.iter_mut().enumerate() {
-        let (v, g) = (tri.vertices[i], tri.grad_bary[i]);
-        *li = 1.0 + g[0] * (p[0] - v[0]) + g[1] * (p[1] - v[1]);
-    }
-    l
+    AffineTriangle::new(mesh.cell_vertices(c)).barycentric(p)
 }
 
 #[cfg(test)]

@@ -110,7 +110,8 @@ pub fn local_mesh_size(mesh: &Mesh, point: Point) -> f64 {
     total / count as f64
 }
 
-fn domain_diameter(mesh: &Mesh) -> f64 {
+/// Diagonal of the bounding box of the mesh vertices.
+pub(super) fn domain_diameter(mesh: &Mesh) -> f64 {
     bounding_diagonal(&mesh.nodes[..mesh.n_vertices])
 }
 

@@ -26,6 +26,15 @@ impl AffineTriangle {
         AffineTriangle { vertices, area, grad_bary: [grad(b, c), grad(c, a), grad(a, b)] }
     }
 
+    /// Barycentric coordinates of `p`: `L_i(p) = 1 + ∇L_i · (p − v_i)` (some negative when `p`
+    /// lies outside).
+    pub fn barycentric(&self, p: Point) -> [f64; 3] {
+        std::array::from_fn(|i| {
+            let (v, g) = (self.vertices[i], self.grad_bary[i]);
+            1.0 + g[0] * (p[0] - v[0]) + g[1] * (p[1] - v[1])
+        })
+    }
+
     /// The physical point with barycentric coordinates `l`.
     pub fn point(&self, l: [f64; 3]) -> Point {
         let [a, b, c] = self.vertices;
@@ -85,6 +94,20 @@ mod tests {
         }
         let v = p2_values([0.2, 0.3, 0.5]);
         assert!((v.iter().sum::<f64>() - 1.0).abs() < 1e-15);
+    }
+
+    #[test]
+    fn barycentric_coordinates_of_the_vertices_are_unit_vectors() {
+        let tri = AffineTriangle::new([[0.1, 0.2], [1.3, 0.4], [0.5, 1.1]]);
+        for (i, v) in tri.vertices.iter().enumerate() {
+            let l = tri.barycentric(*v);
+            for (j, lj) in l.iter().enumerate() {
+                assert!((lj - if i == j { 1.0 } else { 0.0 }).abs() < 1e-14);
+            }
+        }
+        // And they reproduce the point they were taken at.
+        let x = tri.point(tri.barycentric([0.4, 0.5]));
+        assert!((x[0] - 0.4).abs() < 1e-14 && (x[1] - 0.5).abs() < 1e-14);
     }
 
     #[test]

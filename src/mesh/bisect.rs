@@ -25,7 +25,7 @@
 //! on the chord), and so are the quadratic midpoints of such parts.
 
 use super::refine::{lift_children, project_onto_circle};
-use super::{EdgeMap, Mesh, MeshError, triangle_area};
+use super::{EdgeMap, Mesh, MeshError, edge_key as key, triangle_area};
 use crate::geometry::Point;
 
 /// A locally refined mesh and the parent of each of its cells.
@@ -92,10 +92,6 @@ impl Mesh {
 
 fn distance(a: Point, b: Point) -> f64 {
     (a[0] - b[0]).hypot(a[1] - b[1])
-}
-
-fn key(a: usize, b: usize) -> (usize, usize) {
-    (a.min(b), a.max(b))
 }
 
 /// No triangle on this side of an edge.

@@ -175,7 +175,7 @@ impl Mesh {
         for (c, cell) in self.cells.iter().enumerate() {
             for k in 0..3 {
                 let (a, b) = (cell[k], cell[(k + 1) % 3]);
-                let slot = map.entry((a.min(b), a.max(b))).or_insert([usize::MAX; 2]);
+                let slot = map.entry(edge_key(a, b)).or_insert([usize::MAX; 2]);
                 slot[usize::from(slot[0] != usize::MAX)] = c;
             }
         }
@@ -277,6 +277,11 @@ impl Mesh {
 /// Hash map keyed by vertex-index pairs with a fixed multiplicative hash: deterministic and
 /// several times faster than the default SipHash on the millions of edges of a large mesh
 /// (keys are small integers from the mesher, not adversarial input).
+/// The key of the edge between vertices `a` and `b` in an [`EdgeMap`]: `(min, max)`.
+pub(crate) fn edge_key(a: usize, b: usize) -> (usize, usize) {
+    (a.min(b), a.max(b))
+}
+
 /// Cells per edge (see [`Mesh::edge_cells`]).
 pub(crate) type EdgeCells = EdgeMap<[usize; 2]>;
 pub(crate) type EdgeMap<V> = HashMap<(usize, usize), V, BuildHasherDefault<EdgeHasher>>;

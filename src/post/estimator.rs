@@ -38,7 +38,7 @@ use crate::fem::quadrature::{gauss_legendre_unit_3, triangle_rule};
 use crate::fem::shape::{AffineTriangle, p2_gradients, p2_values};
 use crate::fem::{FlowField, ViscousForm};
 use crate::geometry::Point;
-use crate::mesh::Mesh;
+use crate::mesh::{Mesh, edge_key as key};
 
 /// The boundary term a part contributes to the estimator.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -207,7 +207,7 @@ fn longest_edge_sq(tri: &AffineTriangle) -> f64 {
 /// For each vertex pair of an edge: the cells on it, or the boundary part.
 struct EdgeNeighbours {
     cells: crate::mesh::EdgeCells,
-    part: std::collections::HashMap<(usize, usize), usize>,
+    part: crate::mesh::EdgeMap<usize>,
 }
 
 impl EdgeNeighbours {
@@ -216,10 +216,6 @@ impl EdgeNeighbours {
             mesh.boundary_edges.iter().map(|e| (key(e.nodes[0], e.nodes[1]), e.part)).collect();
         EdgeNeighbours { cells: mesh.edge_cells(), part }
     }
-}
-
-fn key(a: usize, b: usize) -> (usize, usize) {
-    (a.min(b), a.max(b))
 }
 
 /// Traction-jump and boundary terms of `η_K²`.
@@ -256,7 +252,7 @@ fn edge_terms(
                 0.5 * edge_integral(|s| {
                     let l = bary(s);
                     let t_in = local.traction(l, n, nu);
-                    let t_out = outer.traction(barycentric(&outer.tri, local.tri.point(l)), n, nu);
+                    let t_out = outer.traction(outer.tri.barycentric(local.tri.point(l)), n, nu);
                     [t_in[0] - t_out[0], t_in[1] - t_out[1]]
                 })
             }
@@ -291,15 +287,6 @@ fn edge_integral(v: impl Fn(f64) -> [f64; 2]) -> f64 {
             w * (x[0] * x[0] + x[1] * x[1])
         })
         .sum()
-}
-
-/// Barycentric coordinates of `x` in `tri`: `L_i(x) = 1/3 + ∇L_i · (x − centroid)`.
-fn barycentric(tri: &AffineTriangle, x: Point) -> [f64; 3] {
-    let c = tri.point([1.0 / 3.0; 3]);
-    std::array::from_fn(|i| {
-        let g = tri.grad_bary[i];
-        1.0 / 3.0 + g[0] * (x[0] - c[0]) + g[1] * (x[1] - c[1])
-    })
 }
 
 #[cfg(test)]

@@ -179,15 +179,9 @@ impl<'m> PointLocator<'m> {
     }
 }
 
-/// Barycentric coordinates of `p` in cell `c`: `L_i(p) = 1 + ∇L_i · (p − v_i)`.
+/// Barycentric coordinates of `p` in cell `c`.
 fn barycentric(mesh: &Mesh, c: usize, p: Point) -> [f64; 3] {
-    let tri = cell_triangle(mesh, c);
-    let mut l = [0.0; 3];
-    for (i, li) in l.iter_mut().enumerate() {
-        let (v, g) = (tri.vertices[i], tri.grad_bary[i]);
-        *li = 1.0 + g[0] * (p[0] - v[0]) + g[1] * (p[1] - v[1]);
-    }
-    l
+    cell_triangle(mesh, c).barycentric(p)
 }
 
 /// Among `cells`, the one in which `p` lies deepest (largest minimum barycentric

@@ -704,7 +704,7 @@ fn difference_norms(
         let child = AffineTriangle::new(fine.cell_vertices(c));
         for (k, &node) in cell.iter().enumerate() {
             let x = child.point(P2_NODE_BARYCENTRIC[k]);
-            let l = barycentric(&tri, x);
+            let l = tri.barycentric(x);
             let phi = p2_values(l);
             let mut u = [0.0; 2];
             for (m, &n) in nodes.iter().enumerate() {
@@ -729,15 +729,6 @@ fn difference_norms(
         PressureComparison::UpToConstant,
     )
     .into()
-}
-
-/// Barycentric coordinates of `x` in `tri`: `L_i(x) = 1/3 + ∇L_i · (x − centroid)`.
-fn barycentric(tri: &AffineTriangle, x: [f64; 2]) -> [f64; 3] {
-    let c = tri.point([1.0 / 3.0; 3]);
-    std::array::from_fn(|i| {
-        let g = tri.grad_bary[i];
-        1.0 / 3.0 + g[0] * (x[0] - c[0]) + g[1] * (x[1] - c[1])
-    })
 }
 
 fn longest_edge(mesh: &Mesh) -> f64 {
@@ -862,16 +853,5 @@ mod tests {
             assert!((r - 2.0).abs() < 1e-12, "{r}");
         }
         assert!(rates[4].is_nan());
-    }
-
-    #[test]
-    fn barycentric_coordinates_of_the_vertices_are_unit_vectors() {
-        let tri = AffineTriangle::new([[0.1, 0.2], [1.3, 0.4], [0.5, 1.1]]);
-        for (i, v) in tri.vertices.iter().enumerate() {
-            let l = barycentric(&tri, *v);
-            for (j, lj) in l.iter().enumerate() {
-                assert!((lj - if i == j { 1.0 } else { 0.0 }).abs() < 1e-14);
-            }
-        }
     }
 }

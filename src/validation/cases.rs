@@ -479,11 +479,21 @@ const GHIA_V_1000: [f64; 15] = [
 ];
 
 fn cavity_toml(reynolds: f64, size: f64, continuation: usize) -> String {
+    let model = format!(
+        "[model]\nequations = \"navier-stokes\"\n[model.nonlinear]\ncontinuation_steps = {continuation}\n"
+    );
+    unit_cavity_toml("validation-cavity", 1.0 / reynolds, size, &model)
+}
+
+/// The lid-driven unit square (lid `u = (1, 0)` on top, no-slip walls, unit reference
+/// scales), mesh size `size` graded to `size / 8` at both lid corners, followed by `rest`
+/// (further `[[mesh.grading]]` tables and the `[model]` section).
+pub(super) fn unit_cavity_toml(name: &str, viscosity: f64, size: f64, rest: &str) -> String {
     format!(
-        r#"name = "validation-cavity"
+        r#"name = "{name}"
 [fluid]
 density = 1.0
-kinematic_viscosity = {nu}
+kinematic_viscosity = {viscosity}
 reference_velocity = 1.0
 reference_length = 1.0
 [domain.outer]
@@ -500,17 +510,12 @@ size = {size}
 max_triangles = 10000000
 [[mesh.grading]]
 near = [0.0, 1.0]
-h_min = {h_min}
+h_min = {h_lid}
 [[mesh.grading]]
 near = [1.0, 1.0]
-h_min = {h_min}
-[model]
-equations = "navier-stokes"
-[model.nonlinear]
-continuation_steps = {continuation}
-"#,
-        nu = 1.0 / reynolds,
-        h_min = size / 8.0,
+h_min = {h_lid}
+{rest}"#,
+        h_lid = size / 8.0,
     )
 }
 

@@ -30,26 +30,8 @@ struct EddyMesh {
 }
 
 fn cavity_eddies_toml(m: &EddyMesh) -> String {
-    format!(
-        r#"name = "validation-cavity-eddies"
-[fluid]
-density = 1.0
-kinematic_viscosity = 1.0
-reference_velocity = 1.0
-reference_length = 1.0
-[domain.outer]
-rectangle = [0.0, 0.0, 1.0, 1.0]
-sides = {{ bottom = "walls", right = "walls", top = "lid", left = "walls" }}
-[conditions.lid]
-kind = "velocity"
-ux = 1
-uy = 0
-[conditions.walls]
-kind = "no-slip"
-[mesh]
-size = {size}
-max_triangles = 10000000
-[[mesh.grading]]
+    let bottom_corners = format!(
+        r#"[[mesh.grading]]
 near = [0.0, 0.0]
 h_min = {h_min}
 growth = {growth}
@@ -57,20 +39,13 @@ growth = {growth}
 near = [1.0, 0.0]
 h_min = {h_min}
 growth = {growth}
-[[mesh.grading]]
-near = [0.0, 1.0]
-h_min = {h_lid}
-[[mesh.grading]]
-near = [1.0, 1.0]
-h_min = {h_lid}
 [model]
 equations = "stokes"
 "#,
-        size = m.size,
-        growth = m.growth,
         h_min = m.h_min,
-        h_lid = m.size / 8.0,
-    )
+        growth = m.growth,
+    );
+    super::cases::unit_cavity_toml("validation-cavity-eddies", 1.0, m.size, &bottom_corners)
 }
 
 /// Solver settings for fields whose small features matter. The refined LDLᵀ solve is driven
