@@ -695,8 +695,7 @@ fn l_shape(level: Level) -> Result<Vec<ValidationRow>, ValidationError> {
     let uniform = run(crate::study::Refinement::Uniform, levels)?;
     let graded = run(crate::study::Refinement::Graded, levels)?;
     let adaptive = run(crate::study::Refinement::Adaptive, adaptive_levels)?;
-    let fitted = re_entrant_corner_fit(&case, finest)
-        .map_err(|what| ValidationError::Failed { case: name.into(), what })?;
+    let fitted = re_entrant_corner_fit(&case, name, finest)?;
     let last = |r: &crate::study::StudyReport| r.rates.last().copied();
     let failed = || ValidationError::Failed { case: name.into(), what: "no rates".into() };
     let (u, g) = (last(&uniform).ok_or_else(failed)?, last(&graded).ok_or_else(failed)?);
@@ -758,22 +757,20 @@ fn l_shape(level: Level) -> Result<Vec<ValidationRow>, ValidationError> {
 
 /// The local exponent fitted at the re-entrant corner `(0, 0)` from the gradient energy in
 /// discs ([`crate::corners::measure_singular_corners`]) on the given level.
-fn re_entrant_corner_fit(case: &Case, level: Option<(Mesh, FlowField)>) -> Result<f64, String> {
-    let (mesh, field) = level.ok_or("no graded level was solved")?;
-    let analysis = crate::corners::try_analyse_corners(
-        &case.domain,
-        &case.conditions,
-        case.model.viscous_form,
-        &crate::corners::AnalysisParams::default(),
-    )
-    .map_err(|e| e.to_string())?;
-    let measured =
-        crate::corners::measure_singular_corners(&case.domain, &mesh, &field, &analysis.reports);
+fn re_entrant_corner_fit(
+    case: &Case,
+    name: &str,
+    level: Option<(Mesh, FlowField)>,
+) -> Result<f64, ValidationError> {
+    let failed = |what: &str| ValidationError::Failed { case: name.into(), what: what.into() };
+    let (mesh, field) = level.ok_or_else(|| failed("no graded level was solved"))?;
+    let reports = super::eddies::corner_reports(case, name)?;
+    let measured = crate::corners::measure_singular_corners(&case.domain, &mesh, &field, &reports);
     let corner = measured
         .iter()
         .find(|m| m.location[0].abs() < 1e-12 && m.location[1].abs() < 1e-12)
-        .ok_or("the re-entrant corner was not classified singular")?;
-    corner.fit.as_ref().map(|f| f.lambda).map_err(|e| e.clone())
+        .ok_or_else(|| failed("the re-entrant corner was not classified singular"))?;
+    corner.fit.as_ref().map(|f| f.lambda).map_err(|e| failed(e))
 }
 
 // ---------------------------------------------------------------------------------------
@@ -794,20 +791,13 @@ fn profile_trailing_edge(level: Level) -> Result<Vec<ValidationRow>, ValidationE
         &StokesProblem::from_case(&case),
         &SolverParams::default(),
     )?;
-    let analysis = crate::corners::try_analyse_corners(
-        &case.domain,
-        &case.conditions,
-        case.model.viscous_form,
-        &crate::corners::AnalysisParams::default(),
-    )
-    .map_err(|e| ValidationError::Failed { case: name.into(), what: e.to_string() })?;
-    let measured =
-        crate::corners::measure_singular_corners(&case.domain, &mesh, &field, &analysis.reports);
+    let reports = super::eddies::corner_reports(&case, name)?;
+    let measured = crate::corners::measure_singular_corners(&case.domain, &mesh, &field, &reports);
     // The trailing edge is the corner with the largest fluid angle.
     let te = measured
         .iter()
         .max_by(|a, b| {
-            let angle = |m: &crate::corners::MeasuredExponent| analysis.reports[m.corner].angle_deg;
+            let angle = |m: &crate::corners::MeasuredExponent| reports[m.corner].angle_deg;
             angle(a).total_cmp(&angle(b))
         })
         .ok_or_else(|| ValidationError::Failed {

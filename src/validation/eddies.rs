@@ -79,7 +79,11 @@ fn solve_case(
     Ok((mesh, field, info))
 }
 
-fn corner_reports(case: &Case, name: &str) -> Result<Vec<CornerReport>, ValidationError> {
+/// The corner reports of the case (the wedge analysis), its failure as a case failure.
+pub(super) fn corner_reports(
+    case: &Case,
+    name: &str,
+) -> Result<Vec<CornerReport>, ValidationError> {
     try_analyse_corners(
         &case.domain,
         &case.conditions,
