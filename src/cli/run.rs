@@ -21,8 +21,8 @@ use cornerflow::output::vtu::{
 use cornerflow::post::{self, FluidProperties, ReferenceScales, VolumeForceTerms, WallReference};
 use cornerflow::solver::{
     FillOrdering, NewtonError, NewtonInfo, NewtonParams, NonsymmetricSolver, SolveError, SolveInfo,
-    SolverKind, SolverParams, StageTimings, StokesProblem, solve_steady_navier_stokes,
-    solve_stokes,
+    SolveStage, SolverKind, SolverParams, StageTimings, StokesProblem, solve_steady_navier_stokes,
+    solve_stokes_observed,
 };
 use serde_json::{Value, json};
 
@@ -68,26 +68,42 @@ pub fn run(args: &RunArgs) -> anyhow::Result<()> {
     }
     let clock = Instant::now();
     // The stream function's matrix depends on the mesh only: it is factorised on a second
-    // thread while the flow is solved (the sequential sparse factorisation leaves one core
-    // idle). Measured on the 1M-unknown default case: 13.3–13.7 s wall before, 10.0–10.6 s
-    // after; writing mesh.vtu on that thread as well was no faster (memory contention).
+    // thread while the flow's matrix is (the sequential sparse factorisation leaves one core
+    // idle; the stages before it use both cores, so a Stokes solve lets the thread start
+    // only then). Measured on the 1M-unknown default case: README, "Performance"; writing
+    // mesh.vtu on that thread as well was no faster (memory contention).
     let (solved, psi_solver) = std::thread::scope(|scope| {
-        let prepare =
-            case.output.solution.then(|| scope.spawn(|| post::StreamFunctionSolver::new(&mesh)));
+        let (start_psi, psi_go) = std::sync::mpsc::channel::<()>();
+        let mesh_ref = &mesh;
+        let prepare = case.output.solution.then(|| {
+            scope.spawn(move || {
+                // A closed channel without a message: the flow solve failed early.
+                psi_go.recv().ok().map(|()| post::StreamFunctionSolver::new(mesh_ref))
+            })
+        });
         let solved = match case.model.equations {
             Equations::Stokes => {
-                solve_steady_stokes(&case, &mesh, args).and_then(|(field, info)| {
+                let mut observe = |stage| {
+                    if stage == SolveStage::Factorisation {
+                        let _ = start_psi.send(());
+                    }
+                };
+                solve_steady_stokes(&case, &mesh, args, &mut observe).and_then(|(field, info)| {
                     if let Some(dir) = &args.export_system {
                         super::export::export_system(dir, &case, &mesh, args.linear_solver, &info)?;
                     }
                     Ok((field, solver_json(&info)))
                 })
             }
-            Equations::NavierStokes => solve_steady_navier_stokes_stage(&case, &mesh, &out, args),
+            Equations::NavierStokes => {
+                let _ = start_psi.send(());
+                solve_steady_navier_stokes_stage(&case, &mesh, &out, args)
+            }
         };
-        let psi_solver = prepare.map(|handle| {
+        drop(start_psi);
+        let psi_solver = prepare.and_then(|handle| {
             handle.join().unwrap_or_else(|_| {
-                Err(post::PostError::StreamFunction { reason: "its thread panicked".into() })
+                Some(Err(post::PostError::StreamFunction { reason: "its thread panicked".into() }))
             })
         });
         (solved, psi_solver)
@@ -271,15 +287,16 @@ fn solve_steady_stokes(
     case: &Case,
     mesh: &Mesh,
     args: &RunArgs,
+    observe: &mut dyn FnMut(SolveStage),
 ) -> anyhow::Result<(FlowField, SolveInfo)> {
     let kind = solver_kind(args.linear_solver);
     let ordering = fill_ordering(args.ordering);
     let name = if kind == SolverKind::Lu { "LU" } else { "LDLᵀ" };
     let stage = Stage::start("solve", &format!("steady Stokes, Taylor–Hood P2–P1, sparse {name}"));
     let problem = StokesProblem::from_case(case);
-    let (field, info) =
-        solve_stokes(mesh, &problem, &SolverParams { kind, ordering, ..SolverParams::default() })
-            .map_err(|e| solve_error(case, e))?;
+    let params = SolverParams { kind, ordering, ..SolverParams::default() };
+    let (field, info) = solve_stokes_observed(mesh, &problem, &params, observe)
+        .map_err(|e| solve_error(case, e))?;
     stage.done(&format!(
         "{} unknowns, relative residual {:.1e} after {} refinement step(s){}",
         info.n_velocity_dofs + info.n_pressure_dofs,

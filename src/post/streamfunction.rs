@@ -8,21 +8,21 @@
 //! normal equations are the pure-Neumann Poisson problem
 //! `(∇ψ_h, ∇φ) = (u_h, ∂φ/∂y) − (v_h, ∂φ/∂x)` for all P2 `φ` vanishing at the pin, whose
 //! matrix is symmetric positive definite on a connected mesh; it is solved by a sparse
-//! Cholesky factorisation (faer) in the mesh's nested-dissection order
-//! ([`crate::mesh::dissection`]). If the velocity is the exact curl of a P2 function
+//! `LDLᵀ` factorisation (faer; no pivoting is needed for a definite matrix) in the mesh's
+//! nested-dissection order ([`crate::mesh::dissection`]), whose triangular solves run through
+//! [`crate::solver::supernodal`] (two threads where the elimination tree splits). If the velocity is the exact curl of a P2 function
 //! (divergence-free with zero net flux through every hole boundary), the minimum is zero and
 //! `ψ_h` is that function up to the pinned constant. Otherwise (non-solenoidal field, or net
 //! flux around a hole) `ψ_h` is the least-squares best fit.
 
 use faer::dyn_stack::{MemBuffer, MemStack};
-use faer::linalg::cholesky::llt::factor::LltRegularization;
+use faer::linalg::cholesky::ldlt::factor::LdltRegularization;
 use faer::perm::PermRef;
 use faer::sparse::linalg::cholesky::{
-    CholeskySymbolicParams, LltRef, SymbolicCholesky, SymmetricOrdering,
-    factorize_symbolic_cholesky,
+    CholeskySymbolicParams, SymbolicCholesky, SymmetricOrdering, factorize_symbolic_cholesky,
 };
 use faer::sparse::{SparseColMat, SparseColMatRef, Triplet};
-use faer::{Conj, MatMut, Par, Side};
+use faer::{Par, Side};
 
 use super::{PostError, cell_triangle, check_field};
 use crate::fem::FlowField;
@@ -30,6 +30,7 @@ use crate::fem::quadrature::triangle_rule;
 use crate::fem::shape::{p2_gradients, p2_values};
 use crate::mesh::Mesh;
 use crate::mesh::dissection::node_order;
+use crate::solver::supernodal::{SweepSplit, solve_ldlt_in_place, sweep_split};
 
 /// P2 stream function `ψ` per mesh node, `ψ = 0` at the first vertex of the first boundary
 /// edge (see the module docs for the formulation).
@@ -51,10 +52,12 @@ pub struct StreamFunctionSolver {
     dof: Vec<Option<usize>>,
     symbolic: SymbolicCholesky<usize>,
     l_values: Vec<f64>,
+    /// Where the triangular solves split over two threads.
+    split: Option<SweepSplit>,
 }
 
 impl StreamFunctionSolver {
-    /// Assembles the pinned P2 stiffness matrix and factorises it (Cholesky in the mesh's
+    /// Assembles the pinned P2 stiffness matrix and factorises it (`LDLᵀ` in the mesh's
     /// nested-dissection order: measured faster than AMD on the matrix graph).
     ///
     /// # Errors
@@ -88,9 +91,11 @@ impl StreamFunctionSolver {
         let mut inverse = vec![usize::MAX; n_dofs];
         perm.iter().enumerate().for_each(|(k, &d)| inverse[d] = k);
         let ordering = SymmetricOrdering::Custom(PermRef::new_checked(&perm, &inverse, n_dofs));
-        let (symbolic, l_values) = cholesky(matrix.as_ref(), ordering)
-            .map_err(|e| PostError::StreamFunction { reason: format!("cholesky: {e:?}") })?;
-        Ok(StreamFunctionSolver { dof, symbolic, l_values })
+        let (symbolic, l_values) = factorize(matrix.as_ref(), ordering).map_err(|e| {
+            PostError::StreamFunction { reason: format!("LDLᵀ factorisation: {e:?}") }
+        })?;
+        let split = sweep_split(&symbolic);
+        Ok(StreamFunctionSolver { dof, symbolic, l_values, split })
     }
 
     /// `ψ` of `field` (one velocity per node of the mesh this solver was built for).
@@ -105,16 +110,8 @@ impl StreamFunctionSolver {
                 reason: "the solver was built for another mesh".into(),
             });
         }
-        let n = mesh.nodes.len() - 1;
         let mut x = load(mesh, field, &self.dof);
-        let par = Par::Seq;
-        let mut buf = MemBuffer::new(self.symbolic.solve_in_place_scratch::<f64>(1, par));
-        LltRef::new(&self.symbolic, &self.l_values).solve_in_place_with_conj(
-            Conj::No,
-            MatMut::from_column_major_slice_mut(&mut x, n, 1),
-            par,
-            MemStack::new(&mut buf),
-        );
+        solve_ldlt_in_place(&self.symbolic, &self.l_values, self.split.as_ref(), &mut x);
         let psi: Vec<f64> = self.dof.iter().map(|d| d.map_or(0.0, |i| x[i])).collect();
         match psi.iter().position(|v| !v.is_finite()) {
             Some(node) => Err(PostError::StreamFunction {
@@ -125,9 +122,9 @@ impl StreamFunctionSolver {
     }
 }
 
-/// The sparse Cholesky factorisation of the symmetric positive definite `A` (lower triangle
+/// The sparse `LDLᵀ` factorisation of the symmetric positive definite `A` (lower triangle
 /// read) with the given ordering: the symbolic structure and the factor's values.
-fn cholesky(
+fn factorize(
     matrix: SparseColMatRef<'_, usize, f64>,
     ordering: SymmetricOrdering<'_, usize>,
 ) -> Result<(SymbolicCholesky<usize>, Vec<f64>), Box<dyn std::fmt::Debug>> {
@@ -142,14 +139,14 @@ fn cholesky(
     .map_err(|e| boxed(&e))?;
     let par = Par::Seq;
     let mut l_values = vec![0.0; symbolic.len_val()];
-    let scratch = symbolic.factorize_numeric_llt_scratch::<f64>(par, Default::default());
+    let scratch = symbolic.factorize_numeric_ldlt_scratch::<f64>(par, Default::default());
     let mut buf = MemBuffer::new(scratch);
     symbolic
-        .factorize_numeric_llt(
+        .factorize_numeric_ldlt(
             &mut l_values,
             matrix,
             Side::Lower,
-            LltRegularization::default(),
+            LdltRegularization::default(),
             par,
             MemStack::new(&mut buf),
             Default::default(),

@@ -28,6 +28,7 @@ pub mod krylov;
 pub mod linear;
 pub mod navier_stokes;
 pub mod ordering;
+pub mod supernodal;
 pub mod unsteady;
 
 use std::time::{Duration, Instant};
@@ -149,8 +150,11 @@ impl SolverParams {
 /// Wall-clock time of each stage.
 #[derive(Clone, Copy, Debug, Default, PartialEq)]
 pub struct StageTimings {
-    /// Boundary resolution, dof numbering, pattern and position map.
+    /// Boundary resolution, dof numbering, pattern and position map (in [`solve_stokes`]
+    /// also the nested-dissection ordering, computed alongside).
     pub pattern: Duration,
+    /// Assembly; in [`solve_stokes`] with rayon it runs alongside the symbolic analysis, so
+    /// the two overlap.
     pub assembly: Duration,
     pub symbolic: Duration,
     pub numeric: Duration,
@@ -229,22 +233,66 @@ pub fn solve_stokes(
     problem: &StokesProblem,
     params: &SolverParams,
 ) -> Result<(FlowField, SolveInfo), SolveError> {
+    solve_stokes_observed(mesh, problem, params, &mut |_| {})
+}
+
+/// The stages of [`solve_stokes_observed`], announced as each begins.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum SolveStage {
+    /// Dof numbering, sparsity pattern and fill-reducing ordering.
+    Pattern,
+    /// Assembly and symbolic analysis (concurrent with [`Parallelism::Rayon`]).
+    Assembly,
+    /// Numeric factorisation (sequential by default: a caller may use the other core).
+    Factorisation,
+    /// Triangular solves and refinement.
+    Substitution,
+}
+
+/// [`solve_stokes`], calling `observe` as each [`SolveStage`] begins.
+///
+/// With [`SolverParams::parallelism`] = [`Parallelism::Rayon`] the pattern is built while
+/// the nested-dissection ordering is computed, and the system is assembled while the
+/// pattern is analysed; [`StageTimings::assembly`] and [`StageTimings::symbolic`] then
+/// overlap. Measured on the 1M-unknown default case: README, "Performance".
+///
+/// # Errors
+/// As [`solve_stokes`].
+pub fn solve_stokes_observed(
+    mesh: &Mesh,
+    problem: &StokesProblem,
+    params: &SolverParams,
+    observe: &mut dyn FnMut(SolveStage),
+) -> Result<(FlowField, SolveInfo), SolveError> {
     let mut timings = StageTimings::default();
+    let linear = params.linear();
+    let join = params.parallelism;
+    observe(SolveStage::Pattern);
     let start = Instant::now();
-    let (pattern, flux) = build_pattern(mesh, problem, params)?;
+    let (dofs, flux) = number_unknowns(mesh, problem, params)?;
+    let nested =
+        linear.kind == SolverKind::Ldlt && params.ordering == FillOrdering::NestedDissection;
+    let (pattern, perm) = join.join(
+        || SystemPattern::new(mesh, dofs.clone(), VelocityCoupling::Full),
+        || nested.then(|| ordering::nested_dissection(mesh, &dofs)),
+    );
+    let pattern = pattern?;
     timings.pattern = start.elapsed();
 
-    let start = Instant::now();
-    let system = assemble_stokes(&pattern, mesh, problem, params.parallelism)?;
-    timings.assembly = start.elapsed();
+    observe(SolveStage::Assembly);
+    let (system, symbolic) = join.join(
+        || timed(|| assemble_stokes(&pattern, mesh, problem, params.parallelism)),
+        || timed(|| SymbolicSystem::analyse_ordered(&pattern, linear.kind, perm.as_deref())),
+    );
+    let ((system, symbolic), (assembly_time, symbolic_time)) =
+        ((system.0?, symbolic.0?), (system.1, symbolic.1));
+    (timings.assembly, timings.symbolic) = (assembly_time, symbolic_time);
 
-    let linear = params.linear();
-    let start = Instant::now();
-    let symbolic = analyse_for_mesh(&pattern, mesh, linear.kind, params.ordering)?;
-    timings.symbolic = start.elapsed();
+    observe(SolveStage::Factorisation);
     let start = Instant::now();
     let factor = symbolic.factorize(&pattern, &system.values, &linear)?;
     timings.numeric = start.elapsed();
+    observe(SolveStage::Substitution);
     let start = Instant::now();
     let (x, refinement) =
         symbolic.solve(&pattern, &system.values, &factor, &system.rhs, &linear)?;
@@ -296,6 +344,19 @@ pub fn build_pattern(
     problem: &StokesProblem,
     params: &SolverParams,
 ) -> Result<(SystemPattern, BoundaryFlux), SolveError> {
+    let (dofs, flux) = number_unknowns(mesh, problem, params)?;
+    // Full coupling even for the gradient form: measured smaller LDLᵀ factors (see
+    // `VelocityCoupling`); Newton linearisations of convection need it anyway.
+    Ok((SystemPattern::new(mesh, dofs, VelocityCoupling::Full)?, flux))
+}
+
+/// Validates the problem and numbers the unknowns (the part of [`build_pattern`] before
+/// the sparsity pattern).
+fn number_unknowns(
+    mesh: &Mesh,
+    problem: &StokesProblem,
+    params: &SolverParams,
+) -> Result<(DofMap, BoundaryFlux), SolveError> {
     if !(problem.viscosity > 0.0 && problem.viscosity.is_finite()) {
         return Err(SolveError::InvalidViscosity { value: problem.viscosity });
     }
@@ -303,10 +364,14 @@ pub fn build_pattern(
         return Err(SolveError::EmptyMesh);
     }
     let constraints = resolve_boundary(mesh, problem.conditions, problem.time)?;
-    let (dofs, flux) = stokes_dof_map(mesh, &constraints, params.flux_tolerance)?;
-    // Full coupling even for the gradient form: measured smaller LDLᵀ factors (see
-    // `VelocityCoupling`); Newton linearisations of convection need it anyway.
-    Ok((SystemPattern::new(mesh, dofs, VelocityCoupling::Full)?, flux))
+    stokes_dof_map(mesh, &constraints, params.flux_tolerance)
+}
+
+/// `f()` with its wall-clock time.
+fn timed<T>(f: impl FnOnce() -> T) -> (T, Duration) {
+    let start = Instant::now();
+    let value = f();
+    (value, start.elapsed())
 }
 
 /// The fewest velocity couplings the viscous form needs: like components only for the
