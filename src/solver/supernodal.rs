@@ -83,16 +83,8 @@ pub fn sweep_split(symbolic: &SymbolicCholesky<usize>) -> Option<SweepSplit> {
 /// A supernodal `LDLᵀ` factor as raw arrays (see the module docs).
 #[derive(Clone, Copy, Debug)]
 pub struct SupernodalLdlt<'a> {
-    /// Order of the factor.
-    n: usize,
-    /// First column of every supernode, and one past its last column.
-    begin: &'a [usize],
-    end: &'a [usize],
-    /// `row_idx[row_ptr[s]..row_ptr[s + 1]]`: the rows below supernode `s`'s diagonal block.
-    row_ptr: &'a [usize],
-    row_idx: &'a [usize],
+    structure: Structure<'a>,
     /// `values[val_ptr[s]..val_ptr[s + 1]]`: supernode `s`'s column-major block.
-    val_ptr: &'a [usize],
     values: &'a [f64],
 }
 
@@ -160,11 +152,9 @@ impl SweepSplit {
             v = children[v][0];
         }
         let kids = &children[v];
+        // The children's subtrees tile 0..v: consecutive, the first from 0, the last up to v.
         let consecutive = kids.windows(2).all(|k| first[k[1]] == k[0] + 1);
-        if kids.len() < 2 || first[v] != 0 || first[kids[0]] != 0 || !consecutive {
-            return None;
-        }
-        if kids.last() != Some(&(v - 1)) {
+        if kids.len() < 2 || first[v] != 0 || !consecutive || kids.last() != Some(&(v - 1)) {
             return None;
         }
         let weight = |r: Range<usize>| factor.val_ptr[r.end] - factor.val_ptr[r.start];
@@ -187,13 +177,17 @@ impl SweepSplit {
     }
 }
 
-/// The symbolic arrays of a supernodal factor (see [`SupernodalLdlt`]).
+/// The symbolic arrays of a supernodal factor of order `n`.
+#[derive(Clone, Copy, Debug)]
 struct Structure<'a> {
     n: usize,
+    /// First column of every supernode, and one past its last column.
     begin: &'a [usize],
     end: &'a [usize],
+    /// `row_idx[row_ptr[s]..row_ptr[s + 1]]`: the rows below supernode `s`'s diagonal block.
     row_ptr: &'a [usize],
     row_idx: &'a [usize],
+    /// Where each supernode's block starts in the values.
     val_ptr: &'a [usize],
 }
 
@@ -222,30 +216,23 @@ impl<'a> SupernodalLdlt<'a> {
     /// When `values` does not have the structure's length (a programming error).
     pub fn new(symbolic: &'a SymbolicSupernodalCholesky<usize>, values: &'a [f64]) -> Self {
         assert_eq!(values.len(), symbolic.len_val(), "factor values of another structure");
-        let s = Structure::of(symbolic);
-        SupernodalLdlt {
-            n: s.n,
-            begin: s.begin,
-            end: s.end,
-            row_ptr: s.row_ptr,
-            row_idx: s.row_idx,
-            val_ptr: s.val_ptr,
-            values,
-        }
+        SupernodalLdlt { structure: Structure::of(symbolic), values }
     }
 
     /// Order of the factor.
     pub fn n(&self) -> usize {
-        self.n
+        self.structure.n
+    }
+
+    fn n_supernodes(&self) -> usize {
+        self.structure.begin.len()
     }
 
     /// Supernode `s`: first column, number of columns, row pattern, column-major block.
     fn supernode(&self, s: usize) -> Supernode<'a> {
-        let start = self.begin[s];
-        let cols = self.end[s] - start;
-        let pattern = &self.row_idx[self.row_ptr[s]..self.row_ptr[s + 1]];
-        let block = &self.values[self.val_ptr[s]..self.val_ptr[s + 1]];
-        Supernode { start, cols, pattern, block }
+        let f = &self.structure;
+        let block = &self.values[f.val_ptr[s]..f.val_ptr[s + 1]];
+        Supernode { start: f.begin[s], cols: f.end[s] - f.begin[s], pattern: f.pattern(s), block }
     }
 
     /// Tallest block (rows of the work vector `w`) among `supernodes`.
@@ -264,7 +251,7 @@ impl<'a> SupernodalLdlt<'a> {
         match split {
             Some(split) => self.split_sweeps(y, split),
             None => {
-                let all = 0..self.begin.len();
+                let all = 0..self.n_supernodes();
                 let mut w = vec![0.0; self.max_rows(all.clone())];
                 self.forward(all.clone(), &mut Rows::whole(y), &mut w);
                 self.backward(all, &mut Rows::whole(y), &mut w);
@@ -273,7 +260,7 @@ impl<'a> SupernodalLdlt<'a> {
     }
 
     fn split_sweeps(&self, y: &mut [f64], split: &SweepSplit) {
-        let n_top = self.n - split.top_column;
+        let n_top = self.n() - split.top_column;
         let mut w_top = vec![0.0; self.max_rows(split.top.clone())];
         // Forward: both groups at once, each into its own copy of the top rows.
         let (groups, top) = y.split_at_mut(split.top_column);
