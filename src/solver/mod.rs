@@ -270,23 +270,21 @@ pub fn solve_stokes_observed(
     observe(SolveStage::Pattern);
     let start = Instant::now();
     let (dofs, flux) = number_unknowns(mesh, problem, params)?;
-    let nested =
-        linear.kind == SolverKind::Ldlt && params.ordering == FillOrdering::NestedDissection;
     let (pattern, perm) = join.join(
-        || SystemPattern::new(mesh, dofs.clone(), VelocityCoupling::Full),
-        || nested.then(|| ordering::nested_dissection(mesh, &dofs)),
+        || full_pattern(mesh, dofs.clone()),
+        || fill_permutation(mesh, &dofs, linear.kind, params.ordering),
     );
     let pattern = pattern?;
     timings.pattern = start.elapsed();
 
     observe(SolveStage::Assembly);
-    let (system, symbolic) = join.join(
+    let ((system, assembly_time), (symbolic, symbolic_time)) = join.join(
         || timed(|| assemble_stokes(&pattern, mesh, problem, params.parallelism)),
         || timed(|| SymbolicSystem::analyse_ordered(&pattern, linear.kind, perm.as_deref())),
     );
-    let ((system, symbolic), (assembly_time, symbolic_time)) =
-        ((system.0?, symbolic.0?), (system.1, symbolic.1));
-    (timings.assembly, timings.symbolic) = (assembly_time, symbolic_time);
+    let (system, symbolic) = (system?, symbolic?);
+    timings.assembly = assembly_time;
+    timings.symbolic = symbolic_time;
 
     observe(SolveStage::Factorisation);
     let start = Instant::now();
@@ -324,13 +322,21 @@ pub fn analyse_for_mesh(
     kind: SolverKind,
     ordering: FillOrdering,
 ) -> Result<SymbolicSystem, SolveError> {
-    match (kind, ordering) {
-        (SolverKind::Ldlt, FillOrdering::NestedDissection) => {
-            let perm = ordering::nested_dissection(mesh, pattern.dofs());
-            SymbolicSystem::analyse_ordered(pattern, kind, Some(&perm))
-        }
-        _ => SymbolicSystem::analyse(pattern, kind),
-    }
+    let perm = fill_permutation(mesh, pattern.dofs(), kind, ordering);
+    SymbolicSystem::analyse_ordered(pattern, kind, perm.as_deref())
+}
+
+/// The fill-reducing permutation [`SymbolicSystem::analyse_ordered`] is given: nested
+/// dissection of `mesh` for an `LDLᵀ` ordered so, `None` (AMD, or COLAMD inside the LU)
+/// otherwise.
+fn fill_permutation(
+    mesh: &Mesh,
+    dofs: &DofMap,
+    kind: SolverKind,
+    ordering: FillOrdering,
+) -> Option<Vec<usize>> {
+    let nested = kind == SolverKind::Ldlt && ordering == FillOrdering::NestedDissection;
+    nested.then(|| ordering::nested_dissection(mesh, dofs))
 }
 
 /// Validates the problem and builds the dof numbering and sparsity pattern (full velocity
@@ -345,9 +351,14 @@ pub fn build_pattern(
     params: &SolverParams,
 ) -> Result<(SystemPattern, BoundaryFlux), SolveError> {
     let (dofs, flux) = number_unknowns(mesh, problem, params)?;
-    // Full coupling even for the gradient form: measured smaller LDLᵀ factors (see
-    // `VelocityCoupling`); Newton linearisations of convection need it anyway.
-    Ok((SystemPattern::new(mesh, dofs, VelocityCoupling::Full)?, flux))
+    Ok((full_pattern(mesh, dofs)?, flux))
+}
+
+/// The pattern of every solver: full velocity coupling even for the gradient form, measured
+/// to give smaller `LDLᵀ` factors (see `VelocityCoupling`); Newton linearisations of
+/// convection need it anyway.
+fn full_pattern(mesh: &Mesh, dofs: DofMap) -> Result<SystemPattern, PatternError> {
+    SystemPattern::new(mesh, dofs, VelocityCoupling::Full)
 }
 
 /// Validates the problem and numbers the unknowns (the part of [`build_pattern`] before
