@@ -48,15 +48,10 @@ PY
   done
 done
 
-python3 - "$work" "${solvers[*]}" "${scales[@]}" <<'PY'
-import json, math, re, sys
+PYTHONPATH="$root/benches" python3 - "$work" "${solvers[*]}" "${scales[@]}" <<'PY'
+import json, re, sys
+from growth import fit
 work, solvers, scales = sys.argv[1], sys.argv[2].split(), sys.argv[3:]
-def fit(xs, ys):
-    pts = [(math.log(x), math.log(y)) for x, y in zip(xs, ys) if x > 0 and y > 0]
-    if len(pts) < 2:
-        return float("nan")
-    mx = sum(p[0] for p in pts) / len(pts); my = sum(p[1] for p in pts) / len(pts)
-    return sum((p[0] - mx) * (p[1] - my) for p in pts) / sum((p[0] - mx) ** 2 for p in pts)
 print("| solver | unknowns | Newton steps | GMRES iterations | numeric s | solve s | solve stage s | peak RSS GB | c_D (volume) |")
 print("|---|---|---|---|---|---|---|---|---|")
 series = {}

@@ -53,8 +53,9 @@ PY
   echo "scale $s done" >&2
 done
 
-python3 - "$work" "${scales[@]}" <<'PY'
-import json, math, re, sys
+PYTHONPATH="$root/benches" python3 - "$work" "${scales[@]}" <<'PY'
+import json, re, sys
+from growth import fit
 work, scales = sys.argv[1], sys.argv[2:]
 cols = ["mesh", "pattern", "assembly", "symbolic", "numeric", "solve", "output", "wall"]
 rows = []
@@ -74,12 +75,6 @@ print("| scale | unknowns | " + " | ".join(f"{c} s" for c in cols) + " | peak RS
 print("|" + "---|" * (len(cols) + 4))
 for s, n, t, rss, l in rows:
     print(f"| {s} | {n:,} | " + " | ".join(f"{x:.2f}" for x in t) + f" | {rss / 1e9:.2f} | {l or '-'} |")
-def fit(xs, ys):
-    pts = [(math.log(x), math.log(y)) for x, y in zip(xs, ys) if x > 0 and y > 0]
-    if len(pts) < 2:
-        return float("nan")
-    mx = sum(p[0] for p in pts) / len(pts); my = sum(p[1] for p in pts) / len(pts)
-    return sum((p[0] - mx) * (p[1] - my) for p in pts) / sum((p[0] - mx) ** 2 for p in pts)
 def exponent_row(label, selected):
     ns = [r[1] for r in selected]
     exps = [fit(ns, [r[2][k] for r in selected]) for k in range(len(cols))]
