@@ -11,8 +11,9 @@ use cornerflow::fem::{FlowField, ViscousForm};
 use cornerflow::mesh::Mesh;
 use cornerflow::mesh::structured::rectangle;
 use cornerflow::solver::{
-    BoundaryConstraints, SolveError, SolveInfo, SolverKind, SolverParams, StokesProblem,
-    SymbolicSystem, assemble_stokes, expand_field, solve_stokes, stokes_dof_map, velocity_coupling,
+    BoundaryConstraints, FillOrdering, SolveError, SolveInfo, SolverKind, SolverParams,
+    StokesProblem, SymbolicSystem, analyse_for_mesh, assemble_stokes, build_pattern, expand_field,
+    solve_stokes, stokes_dof_map, velocity_coupling,
 };
 use cornerflow::study::fitted_rate;
 
@@ -213,6 +214,41 @@ fn poiseuille_wall_shear_and_pressure_drop_match_closed_form() {
         (drop - drop_exact).abs() <= 1e-10 * drop_exact,
         "pressure drop {drop} vs {drop_exact}"
     );
+}
+
+/// The `LDLᵀ` split over the halves of the nested dissection (the default on a mesh this
+/// size) and the one-piece factor (AMD ordering) both reproduce plane Poiseuille flow, which
+/// P2–P1 represents exactly (closed form, benchmarks.md §6.2), and agree to round-off.
+#[test]
+fn split_and_whole_factorisations_both_reproduce_poiseuille() {
+    let mesh = jittered_rectangle([0.0, 0.0], [CHANNEL_LENGTH, CHANNEL_HEIGHT], 72, 24, 0.3, 7);
+    let conditions = [
+        BoundaryCondition::NoSlip,
+        BoundaryCondition::Outflow,
+        BoundaryCondition::NoSlip,
+        inflow(),
+    ];
+    let problem = problem(CHANNEL_VISCOSITY, &conditions, ViscousForm::Gradient);
+    let mut fields = Vec::new();
+    for (ordering, split) in [(FillOrdering::NestedDissection, true), (FillOrdering::Amd, false)] {
+        let params = SolverParams { ordering, ..Default::default() };
+        let (pattern, _) = build_pattern(&mesh, &problem, &params).unwrap();
+        let symbolic = analyse_for_mesh(&pattern, &mesh, SolverKind::Ldlt, ordering).unwrap();
+        assert_eq!(symbolic.splits_halves(), split, "{ordering:?}");
+        let (field, info) = solve_stokes(&mesh, &problem, &params).unwrap();
+        let (eu, ep) = max_errors(&mesh, &field, poiseuille_p);
+        assert!(eu / INFLOW_PEAK <= 1e-10, "{ordering:?}: velocity error {eu:e}");
+        assert!(ep / poiseuille_p(0.0) <= 1e-10, "{ordering:?}: pressure error {ep:e}");
+        assert!(info.relative_residual <= 1e-10);
+        fields.push(field);
+    }
+    let gap = fields[0]
+        .velocity
+        .iter()
+        .zip(&fields[1].velocity)
+        .map(|(a, b)| (a[0] - b[0]).abs().max((a[1] - b[1]).abs()))
+        .fold(0.0, f64::max);
+    assert!(gap <= 1e-10 * INFLOW_PEAK, "split and whole factors differ by {gap:e}");
 }
 
 #[test]

@@ -37,6 +37,7 @@ use faer::{Conj, MatMut, Par, Side};
 use crate::fem::assembly::{Parallelism, SystemPattern};
 
 use super::SolveError;
+use super::split_ldlt::{Halves, PivotRegularization, SplitFactor, SplitSymbolic};
 use super::supernodal::{SweepSplit, solve_ldlt_in_place, sweep_split};
 
 /// Which sparse factorisation is used.
@@ -149,8 +150,15 @@ pub struct SymbolicSystem {
 #[derive(Debug)]
 enum SymbolicKind {
     Ldlt(SymbolicCholesky<usize>),
+    /// `LDLᵀ` with the halves of a nested dissection factorised on two threads.
+    SplitLdlt(Box<SplitSymbolic>),
     Lu(SymbolicLu<usize>),
 }
+
+/// Unknowns each half of a nested dissection needs before [`SymbolicSystem`] factorises the
+/// halves on two threads ([`super::split_ldlt`]); smaller systems factorise in milliseconds
+/// either way.
+const SPLIT_MIN_HALF: usize = 500;
 
 /// A numeric factorisation of one set of matrix values.
 #[derive(Debug)]
@@ -168,7 +176,19 @@ impl NumericFactor {
 #[derive(Debug)]
 enum NumericKind {
     Ldlt(Vec<f64>),
+    SplitLdlt(SplitFactor),
     Lu(Box<NumericLu<usize, f64>>),
+}
+
+impl NumericKind {
+    /// Empty storage of the kind `symbolic` produces.
+    fn empty_for(symbolic: &SymbolicKind) -> Self {
+        match symbolic {
+            SymbolicKind::Ldlt(_) => NumericKind::Ldlt(Vec::new()),
+            SymbolicKind::SplitLdlt(_) => NumericKind::SplitLdlt(SplitFactor::default()),
+            SymbolicKind::Lu(_) => NumericKind::Lu(Box::default()),
+        }
+    }
 }
 
 fn faer_par(parallelism: Parallelism) -> Par {
@@ -201,19 +221,49 @@ impl SymbolicSystem {
         kind: SolverKind,
         perm: Option<&[usize]>,
     ) -> Result<Self, SolveError> {
+        Self::analyse_dissected(pattern, kind, perm, None)
+    }
+
+    /// Like [`SymbolicSystem::analyse_ordered`]; when `halves` gives the two halves that
+    /// `perm` numbers first (a nested dissection's top split,
+    /// [`super::ordering::nested_dissection_halves`]) and each has at least
+    /// [`SPLIT_MIN_HALF`] unknowns, the `LDLᵀ` factorises them on two threads
+    /// ([`super::split_ldlt`]); otherwise, or when the halves turn out coupled, as one.
+    ///
+    /// # Errors
+    /// As [`SymbolicSystem::analyse_ordered`].
+    pub fn analyse_dissected(
+        pattern: &SystemPattern,
+        kind: SolverKind,
+        perm: Option<&[usize]>,
+        halves: Option<Halves>,
+    ) -> Result<Self, SolveError> {
         let inverse = match perm {
             Some(p) => Some(inverse_permutation(p, pattern.n())?),
             None => None,
         };
+        let dofs = pattern.dofs();
+        let signs: Vec<i8> =
+            (0..pattern.n()).map(|d| if dofs.is_pressure(d) { -1 } else { 1 }).collect();
+        let fail = |e: faer::sparse::FaerError| SolveError::Factorization {
+            stage: "symbolic",
+            reason: format!("{e:?}"),
+        };
+        let big_halves = halves.filter(|h| h.first.min(h.second) >= SPLIT_MIN_HALF);
+        if let (SolverKind::Ldlt, Some(fwd), Some(inv), Some(halves)) =
+            (kind, perm, &inverse, big_halves)
+            && let Some(split) =
+                SplitSymbolic::analyse(pattern.symbolic(), fwd, inv, halves, &signs)
+                    .map_err(fail)?
+        {
+            let kind = SymbolicKind::SplitLdlt(Box::new(split));
+            return Ok(SymbolicSystem { kind, signs, sweep_split: None });
+        }
         let ordering = match (perm, &inverse) {
             (Some(fwd), Some(inv)) => {
                 SymmetricOrdering::Custom(PermRef::new_checked(fwd, inv, fwd.len()))
             }
             _ => SymmetricOrdering::Amd,
-        };
-        let fail = |e: faer::sparse::FaerError| SolveError::Factorization {
-            stage: "symbolic",
-            reason: format!("{e:?}"),
         };
         let kind = match kind {
             SolverKind::Ldlt => SymbolicKind::Ldlt(
@@ -230,13 +280,17 @@ impl SymbolicSystem {
                     .map_err(fail)?,
             ),
         };
-        let dofs = pattern.dofs();
-        let signs = (0..pattern.n()).map(|d| if dofs.is_pressure(d) { -1 } else { 1 }).collect();
         let sweep_split = match &kind {
             SymbolicKind::Ldlt(sym) => sweep_split(sym),
-            SymbolicKind::Lu(_) => None,
+            _ => None,
         };
         Ok(SymbolicSystem { kind, signs, sweep_split })
+    }
+
+    /// Whether the `LDLᵀ` factorises the two halves of a nested dissection on two threads
+    /// ([`super::split_ldlt`]).
+    pub fn splits_halves(&self) -> bool {
+        matches!(self.kind, SymbolicKind::SplitLdlt(_))
     }
 
     /// Number of stored factor entries (`L` of `LDLᵀ`; `None` for LU, whose size is known
@@ -244,6 +298,7 @@ impl SymbolicSystem {
     pub fn factor_entries(&self) -> Option<usize> {
         match &self.kind {
             SymbolicKind::Ldlt(sym) => Some(sym.len_val()),
+            SymbolicKind::SplitLdlt(split) => Some(split.factor_entries()),
             SymbolicKind::Lu(_) => None,
         }
     }
@@ -258,11 +313,7 @@ impl SymbolicSystem {
         values: &[f64],
         params: &LinearParams,
     ) -> Result<NumericFactor, SolveError> {
-        let kind = match self.kind {
-            SymbolicKind::Ldlt(_) => NumericKind::Ldlt(Vec::new()),
-            SymbolicKind::Lu(_) => NumericKind::Lu(Box::default()),
-        };
-        let mut factor = NumericFactor { kind };
+        let mut factor = NumericFactor { kind: NumericKind::empty_for(&self.kind) };
         self.refactorize(pattern, values, params, &mut factor)?;
         Ok(factor)
     }
@@ -283,7 +334,12 @@ impl SymbolicSystem {
         match (&self.kind, &mut factor.kind) {
             (SymbolicKind::Ldlt(sym), NumericKind::Ldlt(l_values)) => {
                 l_values.resize(sym.len_val(), 0.0);
-                self.factorize_ldlt(sym, pattern, values, params.regularization, par, l_values)
+                let target = LdltTarget::Whole(sym, l_values);
+                self.factorize_ldlt(target, pattern, values, params.regularization, par)
+            }
+            (SymbolicKind::SplitLdlt(split), NumericKind::SplitLdlt(split_factor)) => {
+                let target = LdltTarget::Split(split, split_factor);
+                self.factorize_ldlt(target, pattern, values, params.regularization, par)
             }
             (SymbolicKind::Lu(sym), NumericKind::Lu(numeric)) => {
                 let matrix = SparseColMatRef::new(pattern.symbolic(), values);
@@ -301,55 +357,60 @@ impl SymbolicSystem {
             }
             (_, kind) => {
                 // A factor of the other kind: start from empty storage of the right kind.
-                *kind = match self.kind {
-                    SymbolicKind::Ldlt(_) => NumericKind::Ldlt(Vec::new()),
-                    SymbolicKind::Lu(_) => NumericKind::Lu(Box::default()),
-                };
+                *kind = NumericKind::empty_for(&self.kind);
                 self.refactorize(pattern, values, params, factor)
             }
         }
     }
 
-    /// Regularised `LDLᵀ` of `values` into `l_values` (see [`Regularization`]).
+    /// Regularised `LDLᵀ` of `values` into `target` (see [`Regularization`]).
     fn factorize_ldlt(
         &self,
-        sym: &SymbolicCholesky<usize>,
+        target: LdltTarget<'_>,
         pattern: &SystemPattern,
         values: &[f64],
         regularization: Regularization,
         par: Par,
-        l_values: &mut [f64],
     ) -> Result<(), SolveError> {
         let scale = pressure_scale(pattern, values);
-        let (values, regularization) = match regularization {
+        let (values, pivots) = match regularization {
             Regularization::Dynamic { delta, epsilon } => (
                 Cow::Borrowed(values),
-                LdltRegularization {
-                    dynamic_regularization_signs: Some(&self.signs),
-                    dynamic_regularization_delta: delta * scale,
-                    dynamic_regularization_epsilon: epsilon * scale,
-                },
+                Some(PivotRegularization { delta: delta * scale, epsilon: epsilon * scale }),
             ),
-            Regularization::Static { delta } => (
-                Cow::Owned(shift_pressure_diagonal(pattern, values, -delta * scale)),
-                LdltRegularization::default(),
-            ),
+            Regularization::Static { delta } => {
+                (Cow::Owned(shift_pressure_diagonal(pattern, values, -delta * scale)), None)
+            }
         };
-        let matrix = SparseColMatRef::new(pattern.symbolic(), &values);
-        let scratch = sym.factorize_numeric_ldlt_scratch::<f64>(par, Default::default());
-        let mut buf = MemBuffer::new(scratch);
-        let stack = MemStack::new(&mut buf);
-        sym.factorize_numeric_ldlt(
-            l_values,
-            matrix,
-            Side::Lower,
-            regularization,
-            par,
-            stack,
-            Default::default(),
-        )
-        .map(|_| ())
-        .map_err(|e| numeric_failure(format!("{e:?}")))
+        match target {
+            LdltTarget::Split(split, factor) => {
+                split.factorize(&values, pivots, par, factor).map_err(numeric_failure)
+            }
+            LdltTarget::Whole(sym, l_values) => {
+                let regularization = match pivots {
+                    Some(p) => LdltRegularization {
+                        dynamic_regularization_signs: Some(&self.signs),
+                        dynamic_regularization_delta: p.delta,
+                        dynamic_regularization_epsilon: p.epsilon,
+                    },
+                    None => LdltRegularization::default(),
+                };
+                let matrix = SparseColMatRef::new(pattern.symbolic(), &values);
+                let scratch = sym.factorize_numeric_ldlt_scratch::<f64>(par, Default::default());
+                let mut buf = MemBuffer::new(scratch);
+                sym.factorize_numeric_ldlt(
+                    l_values,
+                    matrix,
+                    Side::Lower,
+                    regularization,
+                    par,
+                    MemStack::new(&mut buf),
+                    Default::default(),
+                )
+                .map(|_| ())
+                .map_err(|e| numeric_failure(format!("{e:?}")))
+            }
+        }
     }
 
     /// Solves `A x = b` with the factor, then refines against the exact `values` until the
@@ -381,8 +442,8 @@ impl SymbolicSystem {
             self.apply_inverse(factor, &mut residual, params.parallelism);
             x.iter_mut().zip(&residual).for_each(|(xi, di)| *xi += di);
             match self.kind {
-                SymbolicKind::Ldlt(_) => pattern.multiply_symmetric(values, &x, &mut ax),
                 SymbolicKind::Lu(_) => pattern.multiply(values, &x, &mut ax),
+                _ => pattern.multiply_symmetric(values, &x, &mut ax),
             }
             residual.iter_mut().zip(rhs.iter().zip(&ax)).for_each(|(r, (b, a))| *r = b - a);
             let relative = norm(&residual) / norm_b;
@@ -416,6 +477,9 @@ impl SymbolicSystem {
                 // "Memory bandwidth and the IMEX step").
                 solve_ldlt_in_place(sym, l_values, self.sweep_split.as_ref(), rhs);
             }
+            (SymbolicKind::SplitLdlt(split), NumericKind::SplitLdlt(factor)) => {
+                split.solve_in_place(factor, rhs);
+            }
             (SymbolicKind::Lu(sym), NumericKind::Lu(numeric)) => {
                 let rhs = MatMut::from_column_major_slice_mut(rhs, n, 1);
                 let mut buf = MemBuffer::new(sym.solve_in_place_scratch::<f64>(1, par));
@@ -429,6 +493,12 @@ impl SymbolicSystem {
             _ => unreachable!("a factor is only produced by its own symbolic system"),
         }
     }
+}
+
+/// Where [`SymbolicSystem::factorize_ldlt`] writes: one faer factor, or the split one.
+enum LdltTarget<'a> {
+    Whole(&'a SymbolicCholesky<usize>, &'a mut [f64]),
+    Split(&'a SplitSymbolic, &'a mut SplitFactor),
 }
 
 /// Scale of the pressure Schur complement `B A⁻¹ Bᵀ`, estimated as
@@ -486,56 +556,11 @@ fn norm(v: &[f64]) -> f64 {
 
 #[cfg(test)]
 mod tests {
-    use std::ops::Range;
-
     use super::*;
+    use crate::solver::test_grids::{grid_dissection, grid_matrix};
     use faer::linalg::cholesky::ldlt::factor::LdltParams;
     use faer::sparse::linalg::SupernodalThreshold;
     use faer::sparse::linalg::cholesky::LdltRef;
-    use faer::sparse::{SparseColMat, Triplet};
-
-    /// Nested-dissection order of the nodes `rows × cols` of an `m`-wide grid: both halves
-    /// of the longer side, then the separating grid line.
-    fn grid_dissection(rows: Range<usize>, cols: Range<usize>, m: usize, out: &mut Vec<usize>) {
-        let node = |i: usize, j: usize| i * m + j;
-        if rows.len() * cols.len() <= 16 {
-            rows.clone().for_each(|i| cols.clone().for_each(|j| out.push(node(i, j))));
-            return;
-        }
-        if rows.len() >= cols.len() {
-            let mid = rows.start + rows.len() / 2;
-            grid_dissection(rows.start..mid, cols.clone(), m, out);
-            grid_dissection(mid + 1..rows.end, cols.clone(), m, out);
-            cols.for_each(|j| out.push(node(mid, j)));
-        } else {
-            let mid = cols.start + cols.len() / 2;
-            grid_dissection(rows.clone(), cols.start..mid, m, out);
-            grid_dissection(rows.clone(), mid + 1..cols.end, m, out);
-            rows.for_each(|i| out.push(node(i, mid)));
-        }
-    }
-
-    /// The 5-point Laplacian of an `m × m` grid plus `shift · I`, both triangles.
-    fn grid_matrix(m: usize, shift: f64) -> SparseColMat<usize, f64> {
-        let mut triplets = Vec::new();
-        for i in 0..m {
-            for j in 0..m {
-                let k = i * m + j;
-                triplets.push(Triplet::new(k, k, 4.0 + shift + 0.01 * (k % 7) as f64));
-                let mut couple = |l: usize| {
-                    triplets.push(Triplet::new(k, l, -1.0 - 0.001 * (l % 3) as f64));
-                    triplets.push(Triplet::new(l, k, -1.0 - 0.001 * (l % 3) as f64));
-                };
-                if i + 1 < m {
-                    couple(k + m);
-                }
-                if j + 1 < m {
-                    couple(k + 1);
-                }
-            }
-        }
-        SparseColMat::try_new_from_triplets(m * m, m * m, &triplets).unwrap()
-    }
 
     /// Our supernodal sweeps (one thread and two) against faer's own `LDLᵀ` solve on the same
     /// factor (faer as the reference library), with a nested-dissection permutation.

@@ -28,7 +28,10 @@ pub mod krylov;
 pub mod linear;
 pub mod navier_stokes;
 pub mod ordering;
+pub mod split_ldlt;
 pub mod supernodal;
+#[cfg(test)]
+mod test_grids;
 pub mod unsteady;
 
 use std::time::{Duration, Instant};
@@ -42,6 +45,7 @@ use crate::fem::kernels::stokes_local_system;
 use crate::fem::shape::AffineTriangle;
 use crate::fem::{FlowField, ViscousForm};
 use crate::mesh::Mesh;
+use split_ldlt::Halves;
 
 pub use boundary::{BoundaryConstraints, BoundaryFlux, boundary_flux, resolve_boundary};
 pub use linear::{
@@ -270,7 +274,7 @@ pub fn solve_stokes_observed(
     observe(SolveStage::Pattern);
     let start = Instant::now();
     let (dofs, flux) = number_unknowns(mesh, problem, params)?;
-    let (pattern, perm) = join.join(
+    let (pattern, dissection) = join.join(
         || full_pattern(mesh, dofs.clone()),
         || fill_permutation(mesh, &dofs, linear.kind, params.ordering),
     );
@@ -280,7 +284,7 @@ pub fn solve_stokes_observed(
     observe(SolveStage::Assembly);
     let ((system, assembly_time), (symbolic, symbolic_time)) = join.join(
         || timed(|| assemble_stokes(&pattern, mesh, problem, params.parallelism)),
-        || timed(|| SymbolicSystem::analyse_ordered(&pattern, linear.kind, perm.as_deref())),
+        || timed(|| analyse_with(&pattern, linear.kind, dissection.as_ref())),
     );
     let (system, symbolic) = (system?, symbolic?);
     timings.assembly = assembly_time;
@@ -322,21 +326,34 @@ pub fn analyse_for_mesh(
     kind: SolverKind,
     ordering: FillOrdering,
 ) -> Result<SymbolicSystem, SolveError> {
-    let perm = fill_permutation(mesh, pattern.dofs(), kind, ordering);
-    SymbolicSystem::analyse_ordered(pattern, kind, perm.as_deref())
+    let dissection = fill_permutation(mesh, pattern.dofs(), kind, ordering);
+    analyse_with(pattern, kind, dissection.as_ref())
 }
 
-/// The fill-reducing permutation [`SymbolicSystem::analyse_ordered`] is given: nested
-/// dissection of `mesh` for an `LDLᵀ` ordered so, `None` (AMD, or COLAMD inside the LU)
-/// otherwise.
+/// The fill-reducing permutation [`SymbolicSystem::analyse_dissected`] is given, with the
+/// halves of its top split: nested dissection of `mesh` for an `LDLᵀ` ordered so, `None`
+/// (AMD, or COLAMD inside the LU) otherwise.
 fn fill_permutation(
     mesh: &Mesh,
     dofs: &DofMap,
     kind: SolverKind,
     ordering: FillOrdering,
-) -> Option<Vec<usize>> {
+) -> Option<(Vec<usize>, Halves)> {
     let nested = kind == SolverKind::Ldlt && ordering == FillOrdering::NestedDissection;
-    nested.then(|| ordering::nested_dissection(mesh, dofs))
+    nested.then(|| ordering::nested_dissection_halves(mesh, dofs))
+}
+
+/// [`SymbolicSystem::analyse_dissected`] with the output of [`fill_permutation`].
+fn analyse_with(
+    pattern: &SystemPattern,
+    kind: SolverKind,
+    dissection: Option<&(Vec<usize>, Halves)>,
+) -> Result<SymbolicSystem, SolveError> {
+    let (perm, halves) = match dissection {
+        Some((perm, halves)) => (Some(&perm[..]), Some(*halves)),
+        None => (None, None),
+    };
+    SymbolicSystem::analyse_dissected(pattern, kind, perm, halves)
 }
 
 /// Validates the problem and builds the dof numbering and sparsity pattern (full velocity

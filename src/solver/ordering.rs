@@ -17,6 +17,7 @@
 //! (1973) 345–363; R.J. Lipton, D.J. Rose, R.E. Tarjan, *Generalized nested dissection*,
 //! SIAM J. Numer. Anal. 16 (1979) 346–358 (`O(n^{3/2})` work for planar meshes). From memory.
 
+use super::split_ldlt::Halves;
 use crate::fem::dofs::{ComponentDof, DofMap};
 use crate::mesh::Mesh;
 use crate::mesh::dissection::{self, DissectionKey};
@@ -24,6 +25,13 @@ use crate::mesh::dissection::{self, DissectionKey};
 /// The nested-dissection permutation of the unknowns of `dofs` on `mesh` (see the module
 /// docs): `perm[k]` is the unknown eliminated `k`-th; every unknown appears once.
 pub fn nested_dissection(mesh: &Mesh, dofs: &DofMap) -> Vec<usize> {
+    nested_dissection_halves(mesh, dofs).0
+}
+
+/// [`nested_dissection`] with the number of unknowns in the two halves of the top split:
+/// `perm` numbers the first half, then the second, then the top separator. No cell has
+/// nodes in both halves, so no matrix entry couples them ([`super::split_ldlt`]).
+pub fn nested_dissection_halves(mesh: &Mesh, dofs: &DofMap) -> (Vec<usize>, Halves) {
     let keys = dissection::node_keys(mesh);
     // (key, class, node, unknown): class 0 velocity, 1 pressure.
     let mut entries: Vec<(DissectionKey, u8, usize, usize)> = Vec::with_capacity(dofs.n_dofs());
@@ -47,7 +55,11 @@ pub fn nested_dissection(mesh: &Mesh, dofs: &DofMap) -> Vec<usize> {
         }
     }
     entries.sort_unstable();
-    entries.into_iter().map(|e| e.3).collect()
+    // Below the root (depth ≥ 1) the first split decision is the path's top bit.
+    let half_of = |key: &DissectionKey| (key.1.0 > 0).then_some(key.0 >> 63);
+    let count = |side| entries.iter().filter(|e| half_of(&e.0) == Some(side)).count();
+    let halves = Halves { first: count(0), second: count(1) };
+    (entries.into_iter().map(|e| e.3).collect(), halves)
 }
 
 #[cfg(test)]

@@ -229,7 +229,7 @@ impl<'a> SupernodalLdlt<'a> {
     }
 
     /// Supernode `s`: first column, number of columns, row pattern, column-major block.
-    fn supernode(&self, s: usize) -> Supernode<'a> {
+    pub(super) fn supernode(&self, s: usize) -> Supernode<'a> {
         let f = &self.structure;
         let block = &self.values[f.val_ptr[s]..f.val_ptr[s + 1]];
         Supernode { start: f.begin[s], cols: f.end[s] - f.begin[s], pattern: f.pattern(s), block }
@@ -286,7 +286,7 @@ impl<'a> SupernodalLdlt<'a> {
 
     /// Forward sweep over one group (its columns `own`, starting at `own_offset`); returns
     /// its updates of the top rows (from `top_offset`, `n_top` of them).
-    fn forward_group(
+    pub(super) fn forward_group(
         &self,
         supernodes: Range<usize>,
         own: &mut [f64],
@@ -302,7 +302,7 @@ impl<'a> SupernodalLdlt<'a> {
     }
 
     /// Backward sweep over one group, reading the (final) top rows.
-    fn backward_group(
+    pub(super) fn backward_group(
         &self,
         supernodes: Range<usize>,
         own: &mut [f64],
@@ -357,15 +357,20 @@ impl<'y> Rows<'y> {
 }
 
 /// One supernode of the factor (see [`SupernodalLdlt::supernode`]).
-struct Supernode<'a> {
-    start: usize,
-    cols: usize,
-    pattern: &'a [usize],
-    block: &'a [f64],
+pub(super) struct Supernode<'a> {
+    /// First column.
+    pub start: usize,
+    /// Columns (`start..start + cols`).
+    pub cols: usize,
+    /// Rows below the diagonal block, ascending.
+    pub pattern: &'a [usize],
+    /// Column-major block of `cols + pattern.len()` rows.
+    pub block: &'a [f64],
 }
 
 impl Supernode<'_> {
-    fn rows(&self) -> usize {
+    /// Rows of the block: the diagonal block's and the pattern's.
+    pub fn rows(&self) -> usize {
         self.cols + self.pattern.len()
     }
 
@@ -375,23 +380,35 @@ impl Supernode<'_> {
         &self.block[j * rows + j + 1..(j + 1) * rows]
     }
 
+    /// Columns of this supernode below `top_offset`, the ones a sweep eliminates (all of
+    /// them, except for a supernode of [`super::split_ldlt`] that straddles its separator:
+    /// its block's separator columns then count as rows of the pattern).
+    fn eliminated(&self, top_offset: usize) -> usize {
+        self.cols.min(top_offset.saturating_sub(self.start))
+    }
+
     /// `y_s ← L_ss⁻¹ y_s`, `y_R ← y_R − L_Rs y_s` (module docs).
     fn forward(&self, y: &mut Rows<'_>, w: &mut [f64]) {
         let (c, w) = (self.cols, &mut w[..self.rows()]);
+        let e = self.eliminated(y.top_offset);
         let own_start = self.start - y.own_offset;
-        w[..c].copy_from_slice(&y.own[own_start..own_start + c]);
-        w[c..].fill(0.0);
-        for j in 0..c {
+        w[..e].copy_from_slice(&y.own[own_start..own_start + e]);
+        w[e..].fill(0.0);
+        for j in 0..e {
             let wj = w[j];
             w[j + 1..].iter_mut().zip(self.below_diagonal(j)).for_each(|(v, l)| *v -= l * wj);
         }
-        y.own[own_start..own_start + c].copy_from_slice(&w[..c]);
+        y.own[own_start..own_start + e].copy_from_slice(&w[..e]);
         let (own_rows, top_rows) = y.split(self.pattern);
         let (w_own, w_top) = w[c..].split_at(own_rows.len());
         for (&row, a) in own_rows.iter().zip(w_own) {
             y.own[row - y.own_offset] += a;
         }
         if let TopRows::Write(top) = &mut y.top {
+            if e < c {
+                let first = self.start + e - y.top_offset;
+                top[first..first + c - e].iter_mut().zip(&w[e..c]).for_each(|(t, a)| *t += a);
+            }
             for (&row, a) in top_rows.iter().zip(w_top) {
                 top[row - y.top_offset] += a;
             }
@@ -401,27 +418,47 @@ impl Supernode<'_> {
     /// `y_s ← L_ssᵀ⁻¹ (D_s⁻¹ y_s − L_Rsᵀ y_R)` (module docs).
     fn backward(&self, y: &mut Rows<'_>, w: &mut [f64]) {
         let (c, rows) = (self.cols, self.rows());
+        let e = self.eliminated(y.top_offset);
         let w = &mut w[..rows];
         let own_start = self.start - y.own_offset;
-        w[..c].copy_from_slice(&y.own[own_start..own_start + c]);
+        w[..e].copy_from_slice(&y.own[own_start..own_start + e]);
         let (own_rows, top_rows) = y.split(self.pattern);
-        let (w_own, w_top) = w[c..].split_at_mut(own_rows.len());
-        for (g, &row) in w_own.iter_mut().zip(own_rows) {
-            *g = y.own[row - y.own_offset];
-        }
         let top: &[f64] = match &y.top {
             TopRows::Read(top) => top,
             TopRows::Write(top) => top,
         };
+        if e < c {
+            let first = self.start + e - y.top_offset;
+            w[e..c].copy_from_slice(&top[first..first + c - e]);
+        }
+        let (w_own, w_top) = w[c..].split_at_mut(own_rows.len());
+        for (g, &row) in w_own.iter_mut().zip(own_rows) {
+            *g = y.own[row - y.own_offset];
+        }
         for (g, &row) in w_top.iter_mut().zip(top_rows) {
             *g = top[row - y.top_offset];
         }
-        for j in (0..c).rev() {
+        for j in (0..e).rev() {
             let d = self.block[j * rows + j];
             w[j] = w[j] / d - dot_descending(self.below_diagonal(j), &w[j + 1..]);
         }
-        y.own[own_start..own_start + c].copy_from_slice(&w[..c]);
+        y.own[own_start..own_start + e].copy_from_slice(&w[..e]);
     }
+}
+
+/// `y ← (L D Lᵀ)⁻¹ y` for a dense `LDLᵀ` factor of order `y.len()` stored column-major in
+/// `block` (`L` strictly below the diagonal, `D` on it; faer's dense layout): one supernode
+/// with an empty pattern.
+///
+/// # Panics
+/// When `block` is not `y.len()²` long (a programming error).
+pub(super) fn solve_dense_ldlt_in_place(block: &[f64], y: &mut [f64]) {
+    let n = y.len();
+    assert_eq!(block.len(), n * n, "dense factor of another order");
+    let dense = Supernode { start: 0, cols: n, pattern: &[], block };
+    let mut w = vec![0.0; n];
+    dense.forward(&mut Rows::whole(y), &mut w);
+    dense.backward(&mut Rows::whole(y), &mut w);
 }
 
 /// Number of independent partial sums in the dot products (lets the compiler vectorise the
