@@ -413,6 +413,17 @@ impl SymbolicSystem {
         }
     }
 
+    /// Prepares `factor` for many solves (a time loop): the split `LDLᵀ`'s values are
+    /// packed for faster triangular solves ([`SplitSymbolic::pack`]); other factors are left
+    /// as they are. The next refactorisation undoes it.
+    pub fn pack_for_repeated_solves(&self, factor: &mut NumericFactor) {
+        if let (SymbolicKind::SplitLdlt(split), NumericKind::SplitLdlt(f)) =
+            (&self.kind, &mut factor.kind)
+        {
+            split.pack(f);
+        }
+    }
+
     /// Solves `A x = b` with the factor, then refines against the exact `values` until the
     /// relative residual reaches the target or the step budget is spent.
     ///

@@ -48,7 +48,9 @@ use faer::sparse::linalg::cholesky::{simplicial, supernodal};
 use faer::sparse::{FaerError, SparseColMatRef, SymbolicSparseColMat, SymbolicSparseColMatRef};
 use faer::{Accum, Mat, MatMut, MatRef, Par};
 
-use super::supernodal::{SupernodalLdlt, Supernode, solve_dense_ldlt_in_place};
+use super::supernodal::{
+    self as supernodal_sweeps, SupernodalLdlt, Supernode, solve_dense_ldlt_in_place,
+};
 
 /// Unknowns in the two halves of a bisected ordering; the separator is the rest, numbered
 /// last.
@@ -91,6 +93,8 @@ struct Half {
     symbolic: SymbolicSupernodalCholesky<usize>,
     /// Supernodes holding columns of the half (the last may also hold separator columns).
     supernodes: usize,
+    /// Where the supernodes' blocks start once packed ([`supernodal::pack_in_place`]).
+    packed_ptr: Vec<usize>,
 }
 
 /// The symbolic analysis of a bisected matrix: both halves' and the separator's layout.
@@ -114,6 +118,8 @@ pub struct SplitFactor {
     halves: [Vec<f64>; 2],
     /// The separator's dense factor, column-major: `Lₜ` below the diagonal, `Dₜ` on it.
     top: Vec<f64>,
+    /// Whether the halves' values are packed ([`SplitSymbolic::pack`]).
+    packed: bool,
 }
 
 impl SplitSymbolic {
@@ -174,11 +180,19 @@ impl SplitSymbolic {
         par: Par,
         factor: &mut SplitFactor,
     ) -> Result<(), String> {
+        factor.packed = false;
         let [first, second] = &mut factor.halves;
-        let (update_first, update_second) = rayon::join(
-            || self.halves[0].factorize(values, regularization, self.n_top, first),
-            || self.halves[1].factorize(values, regularization, self.n_top, second),
-        );
+        // On threads of their own, not rayon's workers: after faer's dense kernels have run
+        // on a worker, our later (SSE2) code on that worker ran 1.6–1.8× slower (measured on
+        // the IMEX right-hand side; a `target-cpu=native` build shows no such slowdown).
+        let (update_first, update_second) = std::thread::scope(|scope| {
+            let halves = &self.halves;
+            let first =
+                scope.spawn(|| halves[0].factorize(values, regularization, self.n_top, first));
+            let second =
+                scope.spawn(|| halves[1].factorize(values, regularization, self.n_top, second));
+            (joined(first), joined(second))
+        });
         let (update_first, update_second) = (update_first?, update_second?);
         // S = Aₜₜ − Σ_h Lₜₕ D_h Lₜₕᵀ (lower triangle; the rest is not read).
         let top = &mut factor.top;
@@ -192,16 +206,37 @@ impl SplitSymbolic {
         }
         drop((update_first, update_second));
         let n = self.n_top;
-        let mut buf = MemBuffer::new(cholesky_in_place_scratch::<f64>(n, par, Default::default()));
-        cholesky_in_place(
-            MatMut::from_column_major_slice_mut(top, n, n),
-            faer_regularization(regularization, &self.top_signs),
-            par,
-            MemStack::new(&mut buf),
-            Default::default(),
-        )
+        let signs = &self.top_signs;
+        std::thread::scope(|scope| {
+            joined(scope.spawn(|| {
+                let scratch = cholesky_in_place_scratch::<f64>(n, par, Default::default());
+                let mut buf = MemBuffer::new(scratch);
+                cholesky_in_place(
+                    MatMut::from_column_major_slice_mut(top, n, n),
+                    faer_regularization(regularization, signs),
+                    par,
+                    MemStack::new(&mut buf),
+                    Default::default(),
+                )
+            }))
+        })
         .map(|_| ())
         .map_err(|e| format!("separator: {e:?}"))
+    }
+
+    /// Packs both halves' values (on two threads) for faster triangular solves: worth its one
+    /// pass over the factor when many solves follow (time stepping). Undone by the next
+    /// [`SplitSymbolic::factorize`].
+    pub fn pack(&self, factor: &mut SplitFactor) {
+        if factor.packed {
+            return;
+        }
+        let [first, second] = &mut factor.halves;
+        let pack = |h: &Half, values: &mut Vec<f64>| {
+            supernodal_sweeps::pack_in_place(&h.symbolic, &h.packed_ptr, values)
+        };
+        rayon::join(|| pack(&self.halves[0], first), || pack(&self.halves[1], second));
+        factor.packed = true;
     }
 
     /// Overwrites `rhs` with `A⁻¹ rhs` for the factor (halves on two threads where rayon's
@@ -209,13 +244,14 @@ impl SplitSymbolic {
     ///
     /// # Panics
     /// When `rhs` or `factor` belong to another system (a programming error).
-    pub fn solve_in_place(&self, factor: &SplitFactor, rhs: &mut [f64]) {
+    pub fn solve_in_place<'s>(&'s self, factor: &'s SplitFactor, rhs: &mut [f64]) {
         assert_eq!(rhs.len(), self.n(), "right-hand side of another size");
         let [first, second] = &self.halves;
-        let views = [
-            SupernodalLdlt::new(&first.symbolic, &factor.halves[0]),
-            SupernodalLdlt::new(&second.symbolic, &factor.halves[1]),
-        ];
+        let view = |h: &'s Half, values: &'s [f64]| match factor.packed {
+            true => SupernodalLdlt::new_packed(&h.symbolic, &h.packed_ptr, values),
+            false => SupernodalLdlt::new(&h.symbolic, values),
+        };
+        let views = [view(first, &factor.halves[0]), view(second, &factor.halves[1])];
         let mut y: Vec<f64> = self.perm.iter().map(|&p| rhs[p]).collect();
         let (y1, rest) = y.split_at_mut(first.own);
         let (y2, top) = rest.split_at_mut(second.own);
@@ -234,6 +270,11 @@ impl SplitSymbolic {
             rhs[p] = y[k];
         }
     }
+}
+
+/// The result of a scoped thread, its panic passed on.
+fn joined<T>(handle: std::thread::ScopedJoinHandle<'_, T>) -> T {
+    handle.join().unwrap_or_else(|panic| std::panic::resume_unwind(panic))
 }
 
 /// faer's regularisation settings for `signs`.
@@ -299,6 +340,7 @@ impl Half {
         let symbolic = supernodal_symbolic(upper)?;
         drop((upper_ptr, upper_idx));
         let supernodes = symbolic.supernode_begin().iter().filter(|&&b| b < own).count();
+        let packed_ptr = supernodal_sweeps::packed_pointers(&symbolic);
         let local_signs =
             (0..n_local).map(|j| if j < own { signs[layout.perm[start + j]] } else { 1 }).collect();
         Ok(Some(Half {
@@ -311,6 +353,7 @@ impl Half {
             signs: local_signs,
             symbolic,
             supernodes,
+            packed_ptr,
         }))
     }
 
@@ -378,6 +421,7 @@ impl Half {
 
     /// `update += W D Wᵀ` for one supernode (see [`Half::separator_update`]).
     fn add_supernode_update(&self, sn: &Supernode<'_>, n_top: usize, update: &mut [f64]) {
+        debug_assert!(!sn.packed, "the update reads faer's column-major blocks");
         let rows = sn.rows();
         let eliminated = sn.cols.min(self.own - sn.start);
         // Block rows from `first` on are separator rows: the diagonal block's below the

@@ -84,8 +84,54 @@ pub fn sweep_split(symbolic: &SymbolicCholesky<usize>) -> Option<SweepSplit> {
 #[derive(Clone, Copy, Debug)]
 pub struct SupernodalLdlt<'a> {
     structure: Structure<'a>,
-    /// `values[val_ptr[s]..val_ptr[s + 1]]`: supernode `s`'s column-major block.
+    /// `values[val_ptr[s]..val_ptr[s + 1]]`: supernode `s`'s column-major block (faer's
+    /// layout), or `values[packed[s]..packed[s + 1]]` its packed columns ([`pack_in_place`]).
     values: &'a [f64],
+    packed: Option<&'a [usize]>,
+}
+
+/// Where every supernode's packed block starts ([`pack_in_place`]), and the total length.
+pub fn packed_pointers(symbolic: &SymbolicSupernodalCholesky<usize>) -> Vec<usize> {
+    let f = Structure::of(symbolic);
+    let mut ptr = Vec::with_capacity(f.begin.len() + 1);
+    ptr.push(0);
+    for s in 0..f.begin.len() {
+        let (cols, rows) = (f.end[s] - f.begin[s], f.end[s] - f.begin[s] + f.pattern(s).len());
+        ptr.push(ptr[s] + packed_offset(cols, rows));
+    }
+    ptr
+}
+
+/// Rewrites faer's supernodal `values` (on `symbolic`) in place to the packed layout of
+/// `packed` (from [`packed_pointers`]): each column from its diagonal down, the columns of
+/// a supernode one after another, the unused upper triangles of the diagonal blocks dropped.
+/// The sweeps then read one unbroken stream (measured: README, "Memory bandwidth and the
+/// IMEX step"). Every value moves to a lower index, so a forward pass of `copy_within` is
+/// safe; `values` is truncated to the packed length.
+///
+/// # Panics
+/// When `values` does not have the structure's length (a programming error).
+pub fn pack_in_place(
+    symbolic: &SymbolicSupernodalCholesky<usize>,
+    packed: &[usize],
+    values: &mut Vec<f64>,
+) {
+    assert_eq!(values.len(), symbolic.len_val(), "factor values of another structure");
+    let f = Structure::of(symbolic);
+    for (s, &to) in packed[..f.begin.len()].iter().enumerate() {
+        let (cols, rows) = (f.end[s] - f.begin[s], f.end[s] - f.begin[s] + f.pattern(s).len());
+        for j in 0..cols {
+            let from = f.val_ptr[s] + j * rows + j;
+            values.copy_within(from..from + rows - j, to + packed_offset(j, rows));
+        }
+    }
+    values.truncate(packed[f.begin.len()]);
+    values.shrink_to_fit();
+}
+
+/// Packed offset of column `j` of a block of `rows` rows: `Σ_{i<j} (rows − i)`.
+fn packed_offset(j: usize, rows: usize) -> usize {
+    j * rows - j * j.saturating_sub(1) / 2
 }
 
 /// Where the supernodal elimination tree splits into two independent groups of subtrees
@@ -216,7 +262,20 @@ impl<'a> SupernodalLdlt<'a> {
     /// When `values` does not have the structure's length (a programming error).
     pub fn new(symbolic: &'a SymbolicSupernodalCholesky<usize>, values: &'a [f64]) -> Self {
         assert_eq!(values.len(), symbolic.len_val(), "factor values of another structure");
-        SupernodalLdlt { structure: Structure::of(symbolic), values }
+        SupernodalLdlt { structure: Structure::of(symbolic), values, packed: None }
+    }
+
+    /// Like [`SupernodalLdlt::new`], for values packed by [`pack_in_place`] with `packed`.
+    ///
+    /// # Panics
+    /// When `values` does not have the packed length (a programming error).
+    pub fn new_packed(
+        symbolic: &'a SymbolicSupernodalCholesky<usize>,
+        packed: &'a [usize],
+        values: &'a [f64],
+    ) -> Self {
+        assert_eq!(values.len(), *packed.last().unwrap_or(&0), "packed values of another size");
+        SupernodalLdlt { structure: Structure::of(symbolic), values, packed: Some(packed) }
     }
 
     /// Order of the factor.
@@ -231,8 +290,10 @@ impl<'a> SupernodalLdlt<'a> {
     /// Supernode `s`: first column, number of columns, row pattern, column-major block.
     pub(super) fn supernode(&self, s: usize) -> Supernode<'a> {
         let f = &self.structure;
-        let block = &self.values[f.val_ptr[s]..f.val_ptr[s + 1]];
-        Supernode { start: f.begin[s], cols: f.end[s] - f.begin[s], pattern: f.pattern(s), block }
+        let ptr = self.packed.unwrap_or(f.val_ptr);
+        let block = &self.values[ptr[s]..ptr[s + 1]];
+        let (start, cols, pattern) = (f.begin[s], f.end[s] - f.begin[s], f.pattern(s));
+        Supernode { start, cols, pattern, block, packed: self.packed.is_some() }
     }
 
     /// Tallest block (rows of the work vector `w`) among `supernodes`.
@@ -364,8 +425,10 @@ pub(super) struct Supernode<'a> {
     pub cols: usize,
     /// Rows below the diagonal block, ascending.
     pub pattern: &'a [usize],
-    /// Column-major block of `cols + pattern.len()` rows.
+    /// Column-major block of `cols + pattern.len()` rows, or its packed columns.
     pub block: &'a [f64],
+    /// Whether `block` holds the packed columns ([`pack_in_place`]).
+    pub packed: bool,
 }
 
 impl Supernode<'_> {
@@ -374,10 +437,21 @@ impl Supernode<'_> {
         self.cols + self.pattern.len()
     }
 
+    /// Where column `j`'s diagonal entry is stored in `block`.
+    fn diagonal_index(&self, j: usize) -> usize {
+        let rows = self.rows();
+        if self.packed { packed_offset(j, rows) } else { j * rows + j }
+    }
+
+    /// The pivot `d_j`.
+    fn pivot(&self, j: usize) -> f64 {
+        self.block[self.diagonal_index(j)]
+    }
+
     /// Column `j` below the diagonal (rows `j + 1..`, diagonal block and pattern).
     fn below_diagonal(&self, j: usize) -> &[f64] {
-        let rows = self.rows();
-        &self.block[j * rows + j + 1..(j + 1) * rows]
+        let first = self.diagonal_index(j) + 1;
+        &self.block[first..first + self.rows() - j - 1]
     }
 
     /// Columns of this supernode below `top_offset`, the ones a sweep eliminates (all of
@@ -439,8 +513,7 @@ impl Supernode<'_> {
             *g = top[row - y.top_offset];
         }
         for j in (0..e).rev() {
-            let d = self.block[j * rows + j];
-            w[j] = w[j] / d - dot_descending(self.below_diagonal(j), &w[j + 1..]);
+            w[j] = w[j] / self.pivot(j) - dot_descending(self.below_diagonal(j), &w[j + 1..]);
         }
         y.own[own_start..own_start + e].copy_from_slice(&w[..e]);
     }
@@ -455,7 +528,7 @@ impl Supernode<'_> {
 pub(super) fn solve_dense_ldlt_in_place(block: &[f64], y: &mut [f64]) {
     let n = y.len();
     assert_eq!(block.len(), n * n, "dense factor of another order");
-    let dense = Supernode { start: 0, cols: n, pattern: &[], block };
+    let dense = Supernode { start: 0, cols: n, pattern: &[], block, packed: false };
     let mut w = vec![0.0; n];
     dense.forward(&mut Rows::whole(y), &mut w);
     dense.backward(&mut Rows::whole(y), &mut w);
