@@ -37,7 +37,7 @@ use faer::{Conj, MatMut, Par, Side};
 use crate::fem::assembly::{Parallelism, SystemPattern};
 
 use super::SolveError;
-use super::split_ldlt::{Halves, PivotRegularization, SplitFactor, SplitSymbolic};
+use super::split_ldlt::{HalfThreads, Halves, PivotRegularization, SplitFactor, SplitSymbolic};
 use super::supernodal::{SweepSplit, solve_ldlt_in_place, sweep_split};
 
 /// Which sparse factorisation is used.
@@ -145,6 +145,8 @@ pub struct SymbolicSystem {
     signs: Vec<i8>,
     /// Where a supernodal `LDLᵀ`'s triangular solves split over two threads.
     sweep_split: Option<SweepSplit>,
+    /// Whether a split `LDLᵀ`'s factors are packed ([`SymbolicSystem::for_repeated_solves`]).
+    pack: bool,
 }
 
 #[derive(Debug)]
@@ -257,7 +259,7 @@ impl SymbolicSystem {
                     .map_err(fail)?
         {
             let kind = SymbolicKind::SplitLdlt(Box::new(split));
-            return Ok(SymbolicSystem { kind, signs, sweep_split: None });
+            return Ok(SymbolicSystem { kind, signs, sweep_split: None, pack: false });
         }
         let ordering = match (perm, &inverse) {
             (Some(fwd), Some(inv)) => {
@@ -284,7 +286,7 @@ impl SymbolicSystem {
             SymbolicKind::Ldlt(sym) => sweep_split(sym),
             _ => None,
         };
-        Ok(SymbolicSystem { kind, signs, sweep_split })
+        Ok(SymbolicSystem { kind, signs, sweep_split, pack: false })
     }
 
     /// Whether the `LDLᵀ` factorises the two halves of a nested dissection on two threads
@@ -338,8 +340,12 @@ impl SymbolicSystem {
                 self.factorize_ldlt(target, pattern, values, params.regularization, par)
             }
             (SymbolicKind::SplitLdlt(split), NumericKind::SplitLdlt(split_factor)) => {
-                let target = LdltTarget::Split(split, split_factor);
-                self.factorize_ldlt(target, pattern, values, params.regularization, par)
+                let target = LdltTarget::Split(split, &mut *split_factor);
+                self.factorize_ldlt(target, pattern, values, params.regularization, par)?;
+                if self.pack {
+                    split.pack(split_factor);
+                }
+                Ok(())
             }
             (SymbolicKind::Lu(sym), NumericKind::Lu(numeric)) => {
                 let matrix = SparseColMatRef::new(pattern.symbolic(), values);
@@ -413,15 +419,16 @@ impl SymbolicSystem {
         }
     }
 
-    /// Prepares `factor` for many solves (a time loop): the split `LDLᵀ`'s values are
-    /// packed for faster triangular solves ([`SplitSymbolic::pack`]); other factors are left
-    /// as they are. The next refactorisation undoes it.
-    pub fn pack_for_repeated_solves(&self, factor: &mut NumericFactor) {
-        if let (SymbolicKind::SplitLdlt(split), NumericKind::SplitLdlt(f)) =
-            (&self.kind, &mut factor.kind)
-        {
-            split.pack(f);
+    /// Sets up the analysis for factors that serve many solves (a time loop): a split
+    /// `LDLᵀ` then factorises its halves on threads of their own ([`HalfThreads::Own`])
+    /// and every factorisation packs its values for faster triangular solves
+    /// ([`SplitSymbolic::pack`]). Other kinds are unchanged.
+    pub fn for_repeated_solves(mut self) -> Self {
+        if let SymbolicKind::SplitLdlt(split) = &mut self.kind {
+            split.set_half_threads(HalfThreads::Own);
+            self.pack = true;
         }
+        self
     }
 
     /// Solves `A x = b` with the factor, then refines against the exact `values` until the

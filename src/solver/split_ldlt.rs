@@ -109,6 +109,24 @@ pub struct SplitSymbolic {
     top_entries: Vec<(usize, usize)>,
     /// Expected pivot signs of the separator's unknowns.
     top_signs: Vec<i8>,
+    /// Where the halves are factorised.
+    threads: HalfThreads,
+}
+
+/// Which threads factorise the two halves.
+///
+/// Measured on this machine (README, "Performance"): on rayon's workers the one-off steady
+/// factorisation is fastest (1M unknowns: 3.3–3.4 s against 4.9–5.8 s on fresh threads,
+/// whose memory arenas start cold) but afterwards our own (SSE2) kernels on those workers
+/// ran 1.6–1.8× slower (the IMEX right-hand side; a `target-cpu=native` build shows no such
+/// slowdown), which costs a time loop far more than the factorisation.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub enum HalfThreads {
+    /// Rayon's pool (default: one factorisation, then a few solves).
+    #[default]
+    Pool,
+    /// Two scoped threads of their own (a factor reused by many solves).
+    Own,
 }
 
 /// A numeric factorisation on a [`SplitSymbolic`].
@@ -155,7 +173,13 @@ impl SplitSymbolic {
             n_top: n - top_start,
             top_entries: layout.separator_entries(),
             top_signs: perm[top_start..].iter().map(|&p| signs[p]).collect(),
+            threads: HalfThreads::Pool,
         }))
+    }
+
+    /// Chooses the threads of the halves' factorisations.
+    pub fn set_half_threads(&mut self, threads: HalfThreads) {
+        self.threads = threads;
     }
 
     /// Order of the matrix.
@@ -182,17 +206,16 @@ impl SplitSymbolic {
     ) -> Result<(), String> {
         factor.packed = false;
         let [first, second] = &mut factor.halves;
-        // On threads of their own, not rayon's workers: after faer's dense kernels have run
-        // on a worker, our later (SSE2) code on that worker ran 1.6–1.8× slower (measured on
-        // the IMEX right-hand side; a `target-cpu=native` build shows no such slowdown).
-        let (update_first, update_second) = std::thread::scope(|scope| {
-            let halves = &self.halves;
-            let first =
-                scope.spawn(|| halves[0].factorize(values, regularization, self.n_top, first));
-            let second =
-                scope.spawn(|| halves[1].factorize(values, regularization, self.n_top, second));
-            (joined(first), joined(second))
-        });
+        let halves = &self.halves;
+        let first = || halves[0].factorize(values, regularization, self.n_top, first);
+        let second = || halves[1].factorize(values, regularization, self.n_top, second);
+        let (update_first, update_second) = match self.threads {
+            HalfThreads::Pool => rayon::join(first, second),
+            HalfThreads::Own => std::thread::scope(|scope| {
+                let (first, second) = (scope.spawn(first), scope.spawn(second));
+                (joined(first), joined(second))
+            }),
+        };
         let (update_first, update_second) = (update_first?, update_second?);
         // S = Aₜₜ − Σ_h Lₜₕ D_h Lₜₕᵀ (lower triangle; the rest is not read).
         let top = &mut factor.top;
@@ -206,20 +229,14 @@ impl SplitSymbolic {
         }
         drop((update_first, update_second));
         let n = self.n_top;
-        let signs = &self.top_signs;
-        std::thread::scope(|scope| {
-            joined(scope.spawn(|| {
-                let scratch = cholesky_in_place_scratch::<f64>(n, par, Default::default());
-                let mut buf = MemBuffer::new(scratch);
-                cholesky_in_place(
-                    MatMut::from_column_major_slice_mut(top, n, n),
-                    faer_regularization(regularization, signs),
-                    par,
-                    MemStack::new(&mut buf),
-                    Default::default(),
-                )
-            }))
-        })
+        let mut buf = MemBuffer::new(cholesky_in_place_scratch::<f64>(n, par, Default::default()));
+        cholesky_in_place(
+            MatMut::from_column_major_slice_mut(top, n, n),
+            faer_regularization(regularization, &self.top_signs),
+            par,
+            MemStack::new(&mut buf),
+            Default::default(),
+        )
         .map(|_| ())
         .map_err(|e| format!("separator: {e:?}"))
     }
@@ -637,11 +654,14 @@ mod tests {
             [(-1.0, 1, None), (-1.0, 2, None), (0.5, 2, Some(tiny))]
         {
             let a = grid_matrix(m, shift);
-            let split =
+            let mut split =
                 SplitSymbolic::analyse(a.symbolic(), &perm, &inverse(&perm), halves, &signs)
                     .unwrap()
                     .expect("the grid's halves are separated");
             assert!(split.halves.iter().all(|h| h.supernodes > 0));
+            if regularization.is_some() {
+                split.set_half_threads(HalfThreads::Own);
+            }
             let reference = faer_solve(&a, &perm, &rhs);
             let scale = reference.iter().fold(0.0f64, |s, v| s.max(v.abs()));
             let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();

@@ -237,8 +237,11 @@ impl<'a> ImexStepper<'a> {
         };
         let (pattern, _) = build_pattern(mesh, &stokes, &params.solver)?;
         let linear = params.solver.linear();
+        // Every step solves with the step matrix's factor (measured: README, "Memory
+        // bandwidth and the IMEX step").
         let symbolic =
-            super::analyse_for_mesh(&pattern, mesh, linear.kind, params.solver.ordering)?;
+            super::analyse_for_mesh(&pattern, mesh, linear.kind, params.solver.ordering)?
+                .for_repeated_solves();
         let matrix = super::assemble_stokes(&pattern, mesh, &stokes, params.solver.parallelism)?;
         let (current, factor) = match initial {
             Some(field) => (field, NumericFactor::placeholder()),
@@ -386,9 +389,6 @@ impl<'a> ImexStepper<'a> {
         }
         let values = &self.matrix.values;
         self.symbolic.refactorize(&self.pattern, values, &self.linear, &mut self.factor)?;
-        // Every step solves with this factor: pack it once (measured: README, "Memory
-        // bandwidth and the IMEX step").
-        self.symbolic.pack_for_repeated_solves(&mut self.factor);
         self.factored_order = order;
         Ok(())
     }
