@@ -23,7 +23,6 @@
 use std::borrow::Cow;
 
 use faer::dyn_stack::{MemBuffer, MemStack};
-use faer::linalg::cholesky::ldlt::factor::LdltRegularization;
 use faer::perm::PermRef;
 use faer::sparse::SparseColMatRef;
 use faer::sparse::linalg::cholesky::{
@@ -37,7 +36,9 @@ use faer::{Conj, MatMut, Par, Side};
 use crate::fem::assembly::{Parallelism, SystemPattern};
 
 use super::SolveError;
-use super::split_ldlt::{HalfThreads, Halves, PivotRegularization, SplitFactor, SplitSymbolic};
+use super::split_ldlt::{
+    HalfThreads, Halves, PivotRegularization, SplitFactor, SplitSymbolic, faer_regularization,
+};
 use super::supernodal::{SweepSplit, solve_ldlt_in_place, sweep_split};
 
 /// Which sparse factorisation is used.
@@ -393,14 +394,7 @@ impl SymbolicSystem {
                 split.factorize(&values, pivots, par, factor).map_err(numeric_failure)
             }
             LdltTarget::Whole(sym, l_values) => {
-                let regularization = match pivots {
-                    Some(p) => LdltRegularization {
-                        dynamic_regularization_signs: Some(&self.signs),
-                        dynamic_regularization_delta: p.delta,
-                        dynamic_regularization_epsilon: p.epsilon,
-                    },
-                    None => LdltRegularization::default(),
-                };
+                let regularization = faer_regularization(pivots, &self.signs);
                 let matrix = SparseColMatRef::new(pattern.symbolic(), &values);
                 let scratch = sym.factorize_numeric_ldlt_scratch::<f64>(par, Default::default());
                 let mut buf = MemBuffer::new(scratch);
@@ -575,10 +569,8 @@ fn norm(v: &[f64]) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::solver::test_grids::{grid_dissection, grid_matrix};
-    use faer::linalg::cholesky::ldlt::factor::LdltParams;
+    use crate::solver::test_grids::{faer_factor, faer_solve, grid_dissection, grid_matrix};
     use faer::sparse::linalg::SupernodalThreshold;
-    use faer::sparse::linalg::cholesky::LdltRef;
 
     /// Our supernodal sweeps (one thread and two) against faer's own `LDLᵀ` solve on the same
     /// factor (faer as the reference library), with a nested-dissection permutation.
@@ -589,38 +581,15 @@ mod tests {
         let n = m * m;
         let mut perm = Vec::new();
         grid_dissection(0..m, 0..m, m, &mut perm);
-        let inv = inverse_permutation(&perm, n).unwrap();
         let params = CholeskySymbolicParams {
             supernodal_flop_ratio_threshold: SupernodalThreshold::FORCE_SUPERNODAL,
             ..Default::default()
         };
-        let ordering = SymmetricOrdering::Custom(PermRef::new_checked(&perm, &inv, n));
-        let sym = factorize_symbolic_cholesky(a.symbolic(), Side::Lower, ordering, params).unwrap();
-        let mut values = vec![0.0; sym.len_val()];
-        let mut buf =
-            MemBuffer::new(sym.factorize_numeric_ldlt_scratch::<f64>(Par::Seq, Default::default()));
-        let params: faer::Spec<LdltParams, f64> = Default::default();
-        sym.factorize_numeric_ldlt(
-            &mut values,
-            a.as_ref(),
-            Side::Lower,
-            LdltRegularization::default(),
-            Par::Seq,
-            MemStack::new(&mut buf),
-            params,
-        )
-        .unwrap();
+        let (sym, values) = faer_factor(&a, &perm, params);
         let split = sweep_split(&sym);
         assert!(split.is_some(), "the dissected grid's tree splits in two");
         let rhs: Vec<f64> = (0..n).map(|k| ((k * 37) % 101) as f64 / 50.0 - 1.0).collect();
-        let mut reference = rhs.clone();
-        let mut buf = MemBuffer::new(sym.solve_in_place_scratch::<f64>(1, Par::Seq));
-        LdltRef::new(&sym, &values).solve_in_place_with_conj(
-            Conj::No,
-            MatMut::from_column_major_slice_mut(&mut reference, n, 1),
-            Par::Seq,
-            MemStack::new(&mut buf),
-        );
+        let reference = faer_solve(&sym, &values, &rhs);
         let scale = reference.iter().fold(0.0f64, |s, v| s.max(v.abs()));
         for split in [None, split.as_ref()] {
             let mut ours = rhs.clone();

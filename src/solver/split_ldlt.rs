@@ -294,8 +294,9 @@ fn joined<T>(handle: std::thread::ScopedJoinHandle<'_, T>) -> T {
     handle.join().unwrap_or_else(|panic| std::panic::resume_unwind(panic))
 }
 
-/// faer's regularisation settings for `signs`.
-fn faer_regularization(
+/// faer's regularisation settings for `signs` (the expected pivot signs in the factor's
+/// numbering); shared with the one-piece factor of [`super::linear`].
+pub(super) fn faer_regularization(
     regularization: Option<PivotRegularization>,
     signs: &[i8],
 ) -> LdltRegularization<'_, f64> {
@@ -589,53 +590,9 @@ fn supernodal_symbolic(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::solver::test_grids::{grid_dissection, grid_matrix};
-    use faer::perm::PermRef;
-    use faer::sparse::linalg::cholesky::{
-        CholeskySymbolicParams, LdltRef, SymmetricOrdering, factorize_symbolic_cholesky,
+    use crate::solver::test_grids::{
+        faer_factor, faer_solve, grid_dissection, grid_matrix, inverse,
     };
-    use faer::{Conj, Side};
-
-    /// The inverse of a permutation.
-    fn inverse(perm: &[usize]) -> Vec<usize> {
-        let mut inv = vec![0; perm.len()];
-        perm.iter().enumerate().for_each(|(k, &p)| inv[p] = k);
-        inv
-    }
-
-    /// faer's own sparse `LDLᵀ` solve of `a x = rhs` in the order `perm` (the reference).
-    fn faer_solve(
-        a: &faer::sparse::SparseColMat<usize, f64>,
-        perm: &[usize],
-        rhs: &[f64],
-    ) -> Vec<f64> {
-        let (n, inv) = (rhs.len(), inverse(perm));
-        let ordering = SymmetricOrdering::Custom(PermRef::new_checked(perm, &inv, n));
-        let params = CholeskySymbolicParams::default();
-        let sym = factorize_symbolic_cholesky(a.symbolic(), Side::Lower, ordering, params).unwrap();
-        let mut values = vec![0.0; sym.len_val()];
-        let mut buf =
-            MemBuffer::new(sym.factorize_numeric_ldlt_scratch::<f64>(Par::Seq, Default::default()));
-        sym.factorize_numeric_ldlt(
-            &mut values,
-            a.as_ref(),
-            Side::Lower,
-            LdltRegularization::default(),
-            Par::Seq,
-            MemStack::new(&mut buf),
-            Default::default(),
-        )
-        .unwrap();
-        let mut x = rhs.to_vec();
-        let mut buf = MemBuffer::new(sym.solve_in_place_scratch::<f64>(1, Par::Seq));
-        LdltRef::new(&sym, &values).solve_in_place_with_conj(
-            Conj::No,
-            MatMut::from_column_major_slice_mut(&mut x, n, 1),
-            Par::Seq,
-            MemStack::new(&mut buf),
-        );
-        x
-    }
 
     /// The split factorisation solves grid systems like faer's own `LDLᵀ` in the same order:
     /// indefinite without regularisation on one thread and two, definite with pivot signs.
@@ -662,7 +619,8 @@ mod tests {
             if regularization.is_some() {
                 split.set_half_threads(HalfThreads::Own);
             }
-            let reference = faer_solve(&a, &perm, &rhs);
+            let (sym, values) = faer_factor(&a, &perm, Default::default());
+            let reference = faer_solve(&sym, &values, &rhs);
             let scale = reference.iter().fold(0.0f64, |s, v| s.max(v.abs()));
             let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
             let mut factor = SplitFactor::default();
