@@ -213,7 +213,7 @@ impl SymbolicSystem {
 
     /// Like [`SymbolicSystem::analyse`], with the fill-reducing permutation of the `LDLᵀ`
     /// given (`perm[k]` = the unknown eliminated `k`-th, e.g. from
-    /// [`super::ordering::nested_dissection`]) instead of AMD; the LU ignores it (faer's LU
+    /// [`super::ordering::nested_dissection_halves`]) instead of AMD; the LU ignores it (faer's LU
     /// always orders with COLAMD).
     ///
     /// # Errors

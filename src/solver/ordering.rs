@@ -23,13 +23,9 @@ use crate::mesh::Mesh;
 use crate::mesh::dissection::{self, DissectionKey};
 
 /// The nested-dissection permutation of the unknowns of `dofs` on `mesh` (see the module
-/// docs): `perm[k]` is the unknown eliminated `k`-th; every unknown appears once.
-pub fn nested_dissection(mesh: &Mesh, dofs: &DofMap) -> Vec<usize> {
-    nested_dissection_halves(mesh, dofs).0
-}
-
-/// [`nested_dissection`] with the number of unknowns in the two halves of the top split:
-/// `perm` numbers the first half, then the second, then the top separator. No cell has
+/// docs; `perm[k]` is the unknown eliminated `k`-th, every unknown appears once) with the
+/// number of unknowns in the two halves of the top split: `perm` numbers the first half,
+/// then the second, then the top separator. No cell has
 /// nodes in both halves, so no matrix entry couples them ([`super::split_ldlt`]).
 pub fn nested_dissection_halves(mesh: &Mesh, dofs: &DofMap) -> (Vec<usize>, Halves) {
     let keys = dissection::node_keys(mesh);
@@ -81,7 +77,9 @@ mod tests {
                 })
                 .collect();
         let dofs = DofMap::new(&mesh, &constraints, None);
-        let perm = nested_dissection(&mesh, &dofs);
+        let (perm, halves) = nested_dissection_halves(&mesh, &dofs);
+        assert!(halves.first > 0 && halves.second > 0);
+        assert!(halves.first + halves.second < perm.len(), "a separator is left");
         let mut seen = vec![false; dofs.n_dofs()];
         perm.iter().for_each(|&d| seen[d] = true);
         assert_eq!(perm.len(), dofs.n_dofs());
