@@ -3,10 +3,11 @@
 //! that bandwidth puts on its two triangular solves.
 //!
 //! The triad moves 24 bytes per element (two reads, one write; write-allocate traffic not
-//! counted, as in STREAM). The bound of a step: an `LDLᵀ` solve reads every stored value of
-//! `L` twice (forward and backward substitution), 8 bytes each (faer's supernodal factor
-//! stores row indices per supernode, not per entry, so they are left out), so
-//! `t_min = 2 · 8 · nnz(L) / bandwidth`; the ratio measured step time / `t_min` says how
+//! counted, as in STREAM). The bound of a step: an `LDLᵀ` solve reads every nonzero of `L`
+//! (its lower triangle with the diagonal, which holds `D`) twice (forward and backward
+//! substitution), 8 bytes each (faer's supernodal factor stores row indices per supernode,
+//! not per entry, so they are left out; the unused upper triangles of the supernodes'
+//! diagonal blocks are not counted either), so `t_min = 2 · 8 · nnz(L) / bandwidth`; the ratio measured step time / `t_min` says how
 //! close the step comes to streaming its factor. The step is the channel problem of the
 //! `step` bench (`[0, 4] × [0, 1]`, Re = 100 on the height), default n = 130 (about 610k
 //! unknowns).
@@ -112,7 +113,7 @@ fn imex_step(n: usize) -> StepMeasurement {
         |a: std::time::Duration, b: std::time::Duration| (a - b).as_secs_f64() / REPEATS as f64;
     StepMeasurement {
         unknowns: stepper.n_unknowns(),
-        l_entries: stepper.factor_entries().unwrap_or(0),
+        l_entries: stepper.factor_nonzeros().unwrap_or(0),
         step: times[REPEATS / 2],
         rhs: per_step(after.rhs, before.rhs),
         solve: per_step(after.solve, before.solve),

@@ -82,10 +82,9 @@ const LOCAL_ENTRIES: usize = LOCAL_SIZE * LOCAL_SIZE;
 /// Cells per rayon work batch: the buffer of local systems (256 × 1.8 kB ≈ 460 kB) stays
 /// within a core's L2 cache (1 MB on this machine, solver-peers.md) while it is scattered.
 const BATCH: usize = 256;
-/// Cells per rayon work batch of a vector assembly: its local vectors are 120 B each, so
-/// 2048 of them (245 kB) stay in L2 as well, with an eighth of the per-batch overhead
-/// (one IMEX right-hand side at 607k unknowns: 0.051 s with 256, 0.037 s with 2048).
-const VECTOR_BATCH: usize = 2048;
+/// Fewest cells (or unknowns) per rayon task of a vector assembly: keeps the per-task
+/// overhead small next to about 0.1 µs of work per item.
+const VECTOR_CHUNK: usize = 1024;
 
 /// The CSC pattern of the assembled system plus the element-to-value position map.
 #[derive(Clone, Debug)]
@@ -207,6 +206,34 @@ impl SystemPattern {
         });
     }
 
+    /// `r = b − A x` for a symmetric `A` with `values` on this pattern (rows gathered as in
+    /// [`SystemPattern::multiply_symmetric`], in parallel), in one pass that also returns
+    /// `‖r‖₂²`. The squares are summed in fixed chunks, then the chunks in order, so the
+    /// result does not depend on how rayon splits the work.
+    pub fn symmetric_residual(&self, values: &[f64], x: &[f64], b: &[f64], r: &mut [f64]) -> f64 {
+        const CHUNK: usize = 4096;
+        let partial: Vec<f64> = r
+            .par_chunks_mut(CHUNK)
+            .enumerate()
+            .map(|(k, chunk)| {
+                let mut squares = 0.0;
+                for (i, ri) in chunk.iter_mut().enumerate() {
+                    let col = k * CHUNK + i;
+                    let range = self.col_ptr[col]..self.col_ptr[col + 1];
+                    let ax: f64 = self.row_idx[range.clone()]
+                        .iter()
+                        .zip(&values[range])
+                        .map(|(&row, v)| v * x[row])
+                        .sum();
+                    *ri = b[col] - ax;
+                    squares += *ri * *ri;
+                }
+                squares
+            })
+            .collect();
+        partial.iter().sum()
+    }
+
     /// Replaces the prescribed boundary values by those of `constraints` (time-dependent
     /// data); the pattern and position map are unchanged. Returns false, changing nothing,
     /// when the constraint layout differs from the one the pattern was built for.
@@ -303,46 +330,104 @@ pub fn assemble_into(
     }
 }
 
+/// Where each free unknown's right-hand side comes from: unknown `d` sums
+/// `weight[e] · loads[slot[e]]` over `e ∈ start[d]..start[d + 1]`, where `loads` are the
+/// local loads of all cells laid end to end (`slot = LOCAL_SIZE · cell + i`). The entries of
+/// an unknown are in element order, so the gathered sum is the serial scatter's, bit for
+/// bit. Built once per pattern; its size is one entry per free local unknown of each cell.
+#[derive(Clone, Debug)]
+pub struct LoadGather {
+    start: Vec<usize>,
+    slot: Vec<u32>,
+    weight: Vec<f64>,
+}
+
+impl LoadGather {
+    /// The gather map of `pattern`'s dof layout on `mesh`.
+    ///
+    /// # Panics
+    /// When the mesh has more than `u32::MAX / LOCAL_SIZE` cells (about 286 million).
+    pub fn new(pattern: &SystemPattern, mesh: &Mesh) -> Self {
+        assert!(mesh.cells.len() <= u32::MAX as usize / LOCAL_SIZE, "too many cells");
+        let n = pattern.n();
+        let free = |cell: &[usize; 6]| {
+            let dofs = pattern.dofs.cell_dofs(cell);
+            (0..LOCAL_SIZE).filter_map(move |i| match dofs[i] {
+                ComponentDof::Free { dof, weight } => Some((i, dof, weight)),
+                ComponentDof::Fixed(_) => None,
+            })
+        };
+        let mut start = vec![0usize; n + 1];
+        for cell in &mesh.cells {
+            free(cell).for_each(|(_, d, _)| start[d + 1] += 1);
+        }
+        for d in 0..n {
+            start[d + 1] += start[d];
+        }
+        let mut fill = start[..n].to_vec();
+        let (mut slot, mut weight) = (vec![0u32; start[n]], vec![0.0; start[n]]);
+        for (c, cell) in mesh.cells.iter().enumerate() {
+            for (i, d, w) in free(cell) {
+                // Fits: c · LOCAL_SIZE + i < u32::MAX by the assertion above.
+                slot[fill[d]] = (c * LOCAL_SIZE + i) as u32;
+                weight[fill[d]] = w;
+                fill[d] += 1;
+            }
+        }
+        LoadGather { start, slot, weight }
+    }
+
+    /// Number of unknowns.
+    pub fn n(&self) -> usize {
+        self.start.len() - 1
+    }
+}
+
 /// Assembles a right-hand side only: `kernel(cell, load)` must overwrite `load` with the
 /// local load of `cell`, **already lifted** (the contribution of the cell's eliminated
-/// values subtracted by the kernel itself); free entries are scattered with the weights of
-/// the [`DofMap`]. `buffer` holds the local loads of one parallel batch and is reused
-/// across calls, so a time loop allocates nothing per step.
+/// values subtracted by the kernel itself); free entries are summed with the weights of the
+/// [`DofMap`] through `gather` (built for the same pattern and mesh). `loads` holds the
+/// local loads of all cells and is reused across calls, so a time loop allocates nothing per
+/// step.
 ///
-/// Both parallelism modes scatter in element order, so they give identical sums.
+/// With rayon both passes (local loads, then one gathered sum per unknown) run in parallel;
+/// both parallelism modes sum in element order, so they give identical results.
+///
+/// # Panics
+/// When `gather` was built for another number of unknowns (a programming error).
 pub fn assemble_vector_into(
-    pattern: &SystemPattern,
+    gather: &LoadGather,
     mesh: &Mesh,
     parallelism: Parallelism,
-    buffer: &mut Vec<[f64; LOCAL_SIZE]>,
+    loads: &mut Vec<[f64; LOCAL_SIZE]>,
     rhs: &mut Vec<f64>,
     kernel: impl Fn(usize, &mut [f64; LOCAL_SIZE]) + Sync,
 ) {
-    rhs.clear();
-    rhs.resize(pattern.n(), 0.0);
-    let batch_size = match parallelism {
-        Parallelism::Serial => 1,
-        Parallelism::Rayon => VECTOR_BATCH,
+    loads.resize(mesh.cells.len(), [0.0; LOCAL_SIZE]);
+    rhs.resize(gather.n(), 0.0);
+    let flat = |loads: &[[f64; LOCAL_SIZE]], d: usize| -> f64 {
+        let range = gather.start[d]..gather.start[d + 1];
+        gather.slot[range.clone()].iter().zip(&gather.weight[range]).fold(0.0, |sum, (&e, w)| {
+            let e = e as usize;
+            sum + w * loads[e / LOCAL_SIZE][e % LOCAL_SIZE]
+        })
     };
-    buffer.resize(batch_size, [0.0; LOCAL_SIZE]);
-    for start in (0..mesh.cells.len()).step_by(batch_size) {
-        let end = (start + batch_size).min(mesh.cells.len());
-        let batch = &mut buffer[..end - start];
-        match parallelism {
-            Parallelism::Serial => {
-                batch.iter_mut().enumerate().for_each(|(k, l)| kernel(start + k, l))
-            }
-            Parallelism::Rayon => {
-                batch.par_iter_mut().enumerate().for_each(|(k, l)| kernel(start + k, l))
-            }
+    match parallelism {
+        Parallelism::Serial => {
+            loads.iter_mut().enumerate().for_each(|(c, load)| kernel(c, load));
+            rhs.iter_mut().enumerate().for_each(|(d, r)| *r = flat(loads, d));
         }
-        for (k, load) in batch.iter().enumerate() {
-            let cell = &mesh.cells[start + k];
-            for (i, d) in pattern.dofs.cell_dofs(cell).iter().enumerate() {
-                if let ComponentDof::Free { dof, weight } = *d {
-                    rhs[dof] += weight * load[i];
-                }
-            }
+        Parallelism::Rayon => {
+            loads
+                .par_iter_mut()
+                .enumerate()
+                .with_min_len(VECTOR_CHUNK)
+                .for_each(|(c, load)| kernel(c, load));
+            let loads = &*loads;
+            rhs.par_iter_mut()
+                .enumerate()
+                .with_min_len(VECTOR_CHUNK)
+                .for_each(|(d, r)| *r = flat(loads, d));
         }
     }
 }
@@ -530,6 +615,71 @@ mod tests {
         pattern.multiply_symmetric(&values, &x, &mut symmetric);
         assert!(general.iter().any(|v| *v != 0.0));
         assert_eq!(general, symmetric);
+    }
+
+    #[test]
+    fn symmetric_residual_is_b_minus_the_product_and_its_squared_norm() {
+        let mesh = rectangle([0.0, 0.0], [1.0, 1.0], 40, 30, |_, _| [0.0, 0.0]).unwrap();
+        let constraints = vec![NodeConstraint::Free; mesh.nodes.len()];
+        let dofs = DofMap::new(&mesh, &constraints, None);
+        let pattern = SystemPattern::new(&mesh, dofs, VelocityCoupling::Full).unwrap();
+        let (cp, ri) = (pattern.col_ptr(), pattern.row_idx());
+        let mut values = vec![0.0; pattern.nnz()];
+        for col in 0..pattern.n() {
+            for k in cp[col]..cp[col + 1] {
+                let (a, b) = (ri[k].min(col), ri[k].max(col));
+                values[k] = ((a * 31 + b * 7) % 13) as f64 - 6.0;
+            }
+        }
+        let x: Vec<f64> = (0..pattern.n()).map(|i| (i % 5) as f64 - 2.0).collect();
+        let b: Vec<f64> = (0..pattern.n()).map(|i| (i % 3) as f64).collect();
+        let mut ax = vec![0.0; x.len()];
+        pattern.multiply(&values, &x, &mut ax);
+        let mut r = vec![f64::NAN; x.len()];
+        let squares = pattern.symmetric_residual(&values, &x, &b, &mut r);
+        let expected: Vec<f64> = b.iter().zip(&ax).map(|(b, a)| b - a).collect();
+        assert!(pattern.n() > 4096, "more than one chunk");
+        assert_eq!(r, expected);
+        let norm2: f64 = expected.iter().map(|v| v * v).sum();
+        assert!((squares - norm2).abs() <= 1e-12 * norm2, "{squares} against {norm2}");
+    }
+
+    #[test]
+    fn gathered_load_equals_the_serial_scatter_bit_for_bit() {
+        // Fixed and slip nodes (weights other than 1) on the boundary; the reference is the
+        // plain element-order scatter `rhs[dof] += weight · load[i]`.
+        let mesh = rectangle([0.0, 0.0], [2.0, 1.0], 30, 14, |_, _| [0.0, 0.0]).unwrap();
+        let mut constraints = vec![NodeConstraint::Free; mesh.nodes.len()];
+        for (n, p) in mesh.nodes.iter().enumerate() {
+            if p[0] == 0.0 {
+                constraints[n] = NodeConstraint::Fixed([1.0, 0.0]);
+            } else if p[1] == 0.0 {
+                constraints[n] = NodeConstraint::Slip { tangent: [0.6, 0.8] };
+            }
+        }
+        let dofs = DofMap::new(&mesh, &constraints, None);
+        let pattern = SystemPattern::new(&mesh, dofs, VelocityCoupling::Full).unwrap();
+        let kernel = |cell: usize, load: &mut [f64; LOCAL_SIZE]| {
+            for (i, l) in load.iter_mut().enumerate() {
+                *l = ((cell * 17 + i * 5) % 23) as f64 / 7.0 - 1.3;
+            }
+        };
+        let mut expected = vec![0.0; pattern.n()];
+        for (c, cell) in mesh.cells.iter().enumerate() {
+            let mut load = [0.0; LOCAL_SIZE];
+            kernel(c, &mut load);
+            for (i, d) in pattern.dofs.cell_dofs(cell).iter().enumerate() {
+                if let ComponentDof::Free { dof, weight } = *d {
+                    expected[dof] += weight * load[i];
+                }
+            }
+        }
+        let gather = LoadGather::new(&pattern, &mesh);
+        for parallelism in [Parallelism::Serial, Parallelism::Rayon] {
+            let (mut loads, mut rhs) = (Vec::new(), vec![f64::NAN; 3]);
+            assemble_vector_into(&gather, &mesh, parallelism, &mut loads, &mut rhs, kernel);
+            assert_eq!(rhs, expected, "{parallelism:?}");
+        }
     }
 
     #[test]

@@ -89,8 +89,11 @@ impl StreamFunctionSolver {
         let mut inverse = vec![usize::MAX; n_dofs];
         perm.iter().enumerate().for_each(|(k, &d)| inverse[d] = k);
         let ordering = SymmetricOrdering::Custom(PermRef::new_checked(&perm, &inverse, n_dofs));
-        let (symbolic, l_values) = factorize(matrix.as_ref(), ordering).map_err(|e| {
-            PostError::StreamFunction { reason: format!("LDLᵀ factorisation: {e:?}") }
+        let factored = factorize(matrix.as_ref(), ordering);
+        // faer ran on this thread only (sequential factorisation).
+        crate::solver::vector_registers::reset_current_thread();
+        let (symbolic, l_values) = factored.map_err(|e| PostError::StreamFunction {
+            reason: format!("LDLᵀ factorisation: {e:?}"),
         })?;
         let split = sweep_split(&symbolic);
         Ok(StreamFunctionSolver { dof, symbolic, l_values, split })

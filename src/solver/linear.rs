@@ -25,8 +25,10 @@ use std::borrow::Cow;
 use faer::dyn_stack::{MemBuffer, MemStack};
 use faer::perm::PermRef;
 use faer::sparse::SparseColMatRef;
+use faer::sparse::linalg::cholesky::supernodal::SymbolicSupernodalCholesky;
 use faer::sparse::linalg::cholesky::{
-    CholeskySymbolicParams, SymbolicCholesky, SymmetricOrdering, factorize_symbolic_cholesky,
+    CholeskySymbolicParams, SymbolicCholesky, SymbolicCholeskyRaw, SymmetricOrdering,
+    factorize_symbolic_cholesky,
 };
 use faer::sparse::linalg::lu::{
     LuRef, LuSymbolicParams, NumericLu, SymbolicLu, factorize_symbolic_lu,
@@ -40,6 +42,7 @@ use super::split_ldlt::{
     HalfThreads, Halves, PivotRegularization, SplitFactor, SplitSymbolic, faer_regularization,
 };
 use super::supernodal::{SweepSplit, solve_ldlt_in_place, sweep_split};
+use super::vector_registers::reset_after_faer;
 
 /// Which sparse factorisation is used.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
@@ -306,6 +309,19 @@ impl SymbolicSystem {
         }
     }
 
+    /// Nonzeros of `L` of `LDLᵀ` (lower triangle with the diagonal): the values one
+    /// triangular solve reads. `None` for LU.
+    pub fn factor_nonzeros(&self) -> Option<usize> {
+        match &self.kind {
+            SymbolicKind::Ldlt(sym) => Some(match sym.raw() {
+                SymbolicCholeskyRaw::Supernodal(raw) => supernodal_nonzeros(raw),
+                SymbolicCholeskyRaw::Simplicial(_) => sym.len_val(),
+            }),
+            SymbolicKind::SplitLdlt(split) => Some(split.factor_nonzeros()),
+            SymbolicKind::Lu(_) => None,
+        }
+    }
+
     /// Factorises the matrix with `values` on `pattern` (the analysed one).
     ///
     /// # Errors
@@ -322,11 +338,25 @@ impl SymbolicSystem {
     }
 
     /// Factorises new `values` on the same pattern into the storage of `factor` (no new
-    /// allocation of the factor in time or Newton loops).
+    /// allocation of the factor in time or Newton loops), then resets the vector registers
+    /// of every thread faer may have run on ([`reset_after_faer`]).
     ///
     /// # Errors
     /// [`SolveError::Factorization`] when faer reports a zero pivot or a singular matrix.
     pub fn refactorize(
+        &self,
+        pattern: &SystemPattern,
+        values: &[f64],
+        params: &LinearParams,
+        factor: &mut NumericFactor,
+    ) -> Result<(), SolveError> {
+        let result = self.factorize_into(pattern, values, params, factor);
+        reset_after_faer();
+        result
+    }
+
+    /// [`SymbolicSystem::refactorize`] without the register reset.
+    fn factorize_into(
         &self,
         pattern: &SystemPattern,
         values: &[f64],
@@ -365,7 +395,7 @@ impl SymbolicSystem {
             (_, kind) => {
                 // A factor of the other kind: start from empty storage of the right kind.
                 *kind = NumericKind::empty_for(&self.kind);
-                self.refactorize(pattern, values, params, factor)
+                self.factorize_into(pattern, values, params, factor)
             }
         }
     }
@@ -448,18 +478,22 @@ impl SymbolicSystem {
             return Ok((x, RefinementInfo { steps: 0, relative_residual: 0.0 }));
         }
         let mut residual = rhs.to_vec();
-        let mut ax = vec![0.0; rhs.len()];
         let mut steps = 0;
         loop {
             self.apply_inverse(factor, &mut residual, params.parallelism);
             x.iter_mut().zip(&residual).for_each(|(xi, di)| *xi += di);
-            match self.kind {
-                SymbolicKind::Lu(_) => pattern.multiply(values, &x, &mut ax),
-                _ => pattern.multiply_symmetric(values, &x, &mut ax),
-            }
-            residual.iter_mut().zip(rhs.iter().zip(&ax)).for_each(|(r, (b, a))| *r = b - a);
-            let relative = norm(&residual) / norm_b;
-            if !relative.is_finite() || x.iter().any(|v| !v.is_finite()) {
+            let squares = match self.kind {
+                SymbolicKind::Lu(_) => {
+                    pattern.multiply(values, &x, &mut residual);
+                    residual.iter_mut().zip(rhs).for_each(|(r, b)| *r = b - *r);
+                    residual.iter().map(|r| r * r).sum()
+                }
+                _ => pattern.symmetric_residual(values, &x, rhs, &mut residual),
+            };
+            // A non-finite x makes the residual non-finite too (each unknown's column holds
+            // its diagonal slot, and 0 · ∞ is NaN).
+            let relative = squares.sqrt() / norm_b;
+            if !relative.is_finite() {
                 return Err(SolveError::NonFiniteSolution { steps });
             }
             if relative <= params.residual_target {
@@ -501,6 +535,7 @@ impl SymbolicSystem {
                     par,
                     MemStack::new(&mut buf),
                 );
+                reset_after_faer();
             }
             _ => unreachable!("a factor is only produced by its own symbolic system"),
         }
@@ -537,6 +572,19 @@ fn shift_pressure_diagonal(pattern: &SystemPattern, values: &[f64], shift: f64) 
         out[pattern.diagonal_position(d)] += shift;
     }
     out
+}
+
+/// Lower-triangle entries of a supernodal factor (column `j` of a block of height `c + r`
+/// holds `c + r − j` of them).
+fn supernodal_nonzeros(raw: &SymbolicSupernodalCholesky<usize>) -> usize {
+    let (begin, end, rows) =
+        (raw.supernode_begin(), raw.supernode_end(), raw.col_ptr_for_row_idx());
+    (0..begin.len())
+        .map(|s| {
+            let cols = end[s] - begin[s];
+            cols * (cols + rows[s + 1] - rows[s]) - cols * (cols - 1) / 2
+        })
+        .sum()
 }
 
 /// The inverse of the permutation `perm` of `0..n`.

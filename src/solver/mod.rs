@@ -33,6 +33,7 @@ pub mod supernodal;
 #[cfg(test)]
 mod test_grids;
 pub mod unsteady;
+pub mod vector_registers;
 
 use std::time::{Duration, Instant};
 

@@ -117,9 +117,11 @@ pub struct SplitSymbolic {
 ///
 /// Measured on this machine (README, "Performance"): on rayon's workers the one-off steady
 /// factorisation is fastest (1M unknowns: 3.3–3.4 s against 4.9–5.8 s on fresh threads,
-/// whose memory arenas start cold) but afterwards our own (SSE2) kernels on those workers
-/// ran 1.6–1.8× slower (the IMEX right-hand side; a `target-cpu=native` build shows no such
-/// slowdown), which costs a time loop far more than the factorisation.
+/// whose memory arenas start cold). A time loop's factor on threads of its own gave IMEX
+/// steps no slower and mostly faster (607k unknowns: 0.107 / 0.124 / 0.135 s against 0.139 /
+/// 0.133 / 0.139 s, alternating). Whichever threads run faer, the solver resets their vector
+/// registers afterwards ([`super::vector_registers`]); that, not the threads, was the cause of
+/// the earlier 1.6–1.8× slowdown of our kernels on rayon's workers.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
 pub enum HalfThreads {
     /// Rayon's pool (default: one factorisation, then a few solves).
@@ -190,6 +192,14 @@ impl SplitSymbolic {
     /// Entries of `L` (the halves' columns, as stored, and the separator's lower triangle).
     pub fn factor_entries(&self) -> usize {
         self.halves.iter().map(Half::own_entries).sum::<usize>() + self.n_top * (self.n_top + 1) / 2
+    }
+
+    /// Nonzeros of `L` (its lower triangle with the diagonal, which holds `D`): the values
+    /// one triangular solve must read, without the unused upper triangles of the
+    /// supernodes' diagonal blocks that [`SplitSymbolic::factor_entries`] counts.
+    pub fn factor_nonzeros(&self) -> usize {
+        self.halves.iter().map(Half::own_nonzeros).sum::<usize>()
+            + self.n_top * (self.n_top + 1) / 2
     }
 
     /// Factorises the matrix with `values` (on the analysed pattern) into `factor`, reusing
@@ -385,6 +395,21 @@ impl Half {
                 let cols = sym.supernode_end()[s] - begin[s];
                 let height = cols + rows[s + 1] - rows[s];
                 height * cols.min(self.own - begin[s])
+            })
+            .sum()
+    }
+
+    /// Lower-triangle entries of the half's own columns (column `j` of a block of height
+    /// `c + r` holds `c + r − j` of them).
+    fn own_nonzeros(&self) -> usize {
+        let sym = &self.symbolic;
+        let (begin, rows) = (sym.supernode_begin(), sym.col_ptr_for_row_idx());
+        (0..self.supernodes)
+            .map(|s| {
+                let cols = sym.supernode_end()[s] - begin[s];
+                let height = cols + rows[s + 1] - rows[s];
+                let own = cols.min(self.own - begin[s]);
+                own * height - own * (own - 1) / 2
             })
             .sum()
     }

@@ -35,8 +35,12 @@
 
 use std::time::{Duration, Instant};
 
+use rayon::prelude::*;
+
 use crate::case::{BoundaryCondition, ScalarExpr};
-use crate::fem::assembly::{AssembledSystem, SystemPattern, assemble_into, assemble_vector_into};
+use crate::fem::assembly::{
+    AssembledSystem, LoadGather, SystemPattern, assemble_into, assemble_vector_into,
+};
 use crate::fem::convection::{add_explicit_step_load, add_mass_block};
 use crate::fem::dofs::ComponentDof;
 use crate::fem::kernels::{LOCAL_SIZE, LocalSystem, stokes_local_system};
@@ -158,7 +162,8 @@ pub struct ImexStepper<'a> {
     matrix: AssembledSystem,
     /// Order of the formula `matrix` and `factor` hold.
     factored_order: usize,
-    cell_has_fixed: Vec<bool>,
+    /// The step matrices of the cells with eliminated values, for lifting those values.
+    lifting: LiftingCells,
     cell_diameter: Vec<f64>,
     step: usize,
     time: f64,
@@ -167,7 +172,10 @@ pub struct ImexStepper<'a> {
     /// `a₀ uⁿ − b₁ uⁿ⁻¹ − b₂ uⁿ⁻²` of the last step.
     derivative: Vec<[f64; 2]>,
     rhs: Vec<f64>,
-    buffer: Vec<[f64; LOCAL_SIZE]>,
+    /// Where each unknown's right-hand side is gathered from (built once).
+    gather: LoadGather,
+    /// Local loads of all cells (reused by every step).
+    loads: Vec<[f64; LOCAL_SIZE]>,
     timings: StepTimings,
 }
 
@@ -252,14 +260,9 @@ impl<'a> ImexStepper<'a> {
                 (expand_field(mesh, pattern.dofs(), &x), factor)
             }
         };
-        let cell_has_fixed = mesh
-            .cells
-            .iter()
-            .map(|c| {
-                pattern.dofs().cell_dofs(c).iter().any(|d| matches!(d, ComponentDof::Fixed(_)))
-            })
-            .collect();
+        let gather = LoadGather::new(&pattern, mesh);
         let cell_diameter = (0..mesh.n_cells()).map(|c| mesh.longest_edge(c)).collect();
+        let lifting = LiftingCells::new(mesh, &pattern);
         let mut stepper = ImexStepper {
             mesh,
             problem,
@@ -270,7 +273,7 @@ impl<'a> ImexStepper<'a> {
             factor,
             matrix,
             factored_order: 0,
-            cell_has_fixed,
+            lifting,
             cell_diameter,
             step: 0,
             time: 0.0,
@@ -278,7 +281,8 @@ impl<'a> ImexStepper<'a> {
             current,
             previous: None,
             rhs: Vec::new(),
-            buffer: Vec::new(),
+            gather,
+            loads: Vec::new(),
             timings: StepTimings::default(),
         };
         stepper.factor_step_matrix(1)?;
@@ -309,6 +313,11 @@ impl<'a> ImexStepper<'a> {
     /// Stored entries of the `LDLᵀ` factor of the step matrix (`None` with LU).
     pub fn factor_entries(&self) -> Option<usize> {
         self.symbolic.factor_entries()
+    }
+
+    /// Nonzeros of the step matrix's `L` (see [`SymbolicSystem::factor_nonzeros`]).
+    pub fn factor_nonzeros(&self) -> Option<usize> {
+        self.symbolic.factor_nonzeros()
     }
 
     /// Time spent per stage so far.
@@ -384,6 +393,7 @@ impl<'a> ImexStepper<'a> {
             &mut self.matrix,
             |cell, local| step_local_matrix(mesh, problem, a0, cell, local),
         );
+        self.lifting.assemble(mesh, problem, a0);
         if self.matrix.dropped_entries > 0 {
             return Err(SolveError::PatternMismatch { dropped: self.matrix.dropped_entries });
         }
@@ -396,13 +406,14 @@ impl<'a> ImexStepper<'a> {
     /// The right-hand side of the step to `time`: history, explicit convection, body force,
     /// minus the step matrix applied to the boundary values at `time`.
     fn assemble_rhs(&mut self, order: usize, time: f64) -> Result<(), SolveError> {
-        let (a0, b1, b2) = bdf_coefficients(order, self.params.dt);
+        let (_, b1, b2) = bdf_coefficients(order, self.params.dt);
         let current = &self.current.velocity;
         let previous = self.previous.as_ref().map_or(current, |p| &p.velocity);
         let (e1, e2) = if order == 1 { (1.0, 0.0) } else { (2.0, -1.0) };
         let convection = self.problem.convection;
         let (mesh, problem, pattern) = (self.mesh, self.problem, &self.pattern);
-        let has_fixed = &self.cell_has_fixed;
+        let gather = &self.gather;
+        let lifting = &self.lifting;
         let force_closure = super::body_force_at(problem.body_force, time);
         let force = force_closure.as_deref();
         let combine = |nodes: &[usize; 6], s1: f64, s2: f64| -> [[f64; 2]; 6] {
@@ -412,10 +423,10 @@ impl<'a> ImexStepper<'a> {
             })
         };
         assemble_vector_into(
-            pattern,
+            gather,
             mesh,
             self.params.solver.parallelism,
-            &mut self.buffer,
+            &mut self.loads,
             &mut self.rhs,
             |cell, load| {
                 *load = [0.0; LOCAL_SIZE];
@@ -424,8 +435,8 @@ impl<'a> ImexStepper<'a> {
                 let history = combine(nodes, b1, b2);
                 let extrapolated = if convection { combine(nodes, e1, e2) } else { [[0.0; 2]; 6] };
                 add_explicit_step_load(&tri, &history, &extrapolated, force, load);
-                if has_fixed[cell] {
-                    lift_fixed_values(mesh, problem, pattern, a0, cell, load);
+                if let Some(matrix) = lifting.matrix(cell) {
+                    lift_fixed_values(matrix, &pattern.dofs().cell_dofs(&mesh.cells[cell]), load);
                 }
             },
         );
@@ -447,22 +458,29 @@ impl<'a> ImexStepper<'a> {
         }
     }
 
-    /// Courant number and largest nodal speed of `field`.
+    /// Courant number and largest nodal speed of `field` (infinite when a velocity is not
+    /// finite). Speeds as `√(u² + v²)`, once per cell; both are maxima, so the parallel
+    /// reduction gives the serial result.
     fn courant(&self, field: &FlowField) -> (f64, f64) {
-        let mut courant: f64 = 0.0;
-        let mut max_speed: f64 = 0.0;
-        for (cell, nodes) in self.mesh.cells.iter().enumerate() {
-            let speed = nodes
-                .iter()
-                .map(|&n| field.velocity[n][0].hypot(field.velocity[n][1]))
-                .fold(0.0, f64::max);
-            max_speed = max_speed.max(speed);
-            courant = courant.max(speed * self.params.dt / self.cell_diameter[cell]);
-        }
-        if field.velocity.iter().any(|u| !(u[0].is_finite() && u[1].is_finite())) {
+        let velocity = &field.velocity;
+        if velocity.par_iter().any(|u| !(u[0].is_finite() && u[1].is_finite())) {
             return (f64::INFINITY, f64::INFINITY);
         }
-        (courant, max_speed)
+        let dt = self.params.dt;
+        self.mesh
+            .cells
+            .par_iter()
+            .zip(&self.cell_diameter)
+            .with_min_len(4096)
+            .map(|(nodes, diameter)| {
+                let squared = nodes
+                    .iter()
+                    .map(|&n| velocity[n][0] * velocity[n][0] + velocity[n][1] * velocity[n][1])
+                    .fold(0.0, f64::max);
+                let speed = squared.sqrt();
+                (speed * dt / diameter, speed)
+            })
+            .reduce(|| (0.0, 0.0), |a, b| (a.0.max(b.0), a.1.max(b.1)))
     }
 
     /// Fails when the new state is not finite or faster than the blow-up limit.
@@ -497,24 +515,66 @@ fn step_local_matrix(
     add_mass_block(&tri, a0, local);
 }
 
-/// Subtracts the local step matrix applied to the cell's eliminated values from `load`.
+/// The cells with eliminated (prescribed) values and their local step matrices, which lift
+/// those values into every step's right-hand side. The matrices depend on the mesh and `a₀`
+/// only, so they are computed with each factorisation instead of each step.
+struct LiftingCells {
+    /// Position in `matrices` of each cell's matrix; `u32::MAX` for a cell with no
+    /// eliminated value.
+    slot: Vec<u32>,
+    cells: Vec<usize>,
+    matrices: Vec<[[f64; LOCAL_SIZE]; LOCAL_SIZE]>,
+}
+
+impl LiftingCells {
+    /// The cells of `mesh` with an eliminated value in `pattern`'s dof layout (matrices
+    /// still to be assembled).
+    fn new(mesh: &Mesh, pattern: &SystemPattern) -> Self {
+        let mut slot = vec![u32::MAX; mesh.n_cells()];
+        let mut cells = Vec::new();
+        for (c, nodes) in mesh.cells.iter().enumerate() {
+            let dofs = pattern.dofs().cell_dofs(nodes);
+            if dofs.iter().any(|d| matches!(d, ComponentDof::Fixed(_))) {
+                // Fits: LoadGather::new, built for the same mesh, asserts a smaller cell count.
+                slot[c] = cells.len() as u32;
+                cells.push(c);
+            }
+        }
+        LiftingCells { slot, cells, matrices: Vec::new() }
+    }
+
+    /// Computes the step matrices of BDF coefficient `a0` (in parallel).
+    fn assemble(&mut self, mesh: &Mesh, problem: UnsteadyProblem, a0: f64) {
+        self.matrices = self
+            .cells
+            .par_iter()
+            .map(|&c| {
+                let mut local = LocalSystem::default();
+                step_local_matrix(mesh, problem, a0, c, &mut local);
+                local.matrix
+            })
+            .collect();
+    }
+
+    /// The step matrix of `cell`, when it has eliminated values.
+    fn matrix(&self, cell: usize) -> Option<&[[f64; LOCAL_SIZE]; LOCAL_SIZE]> {
+        self.matrices.get(*self.slot.get(cell)? as usize)
+    }
+}
+
+/// Subtracts the local step `matrix` applied to the cell's eliminated values (in `dofs`)
+/// from `load`.
 fn lift_fixed_values(
-    mesh: &Mesh,
-    problem: UnsteadyProblem,
-    pattern: &SystemPattern,
-    a0: f64,
-    cell: usize,
+    matrix: &[[f64; LOCAL_SIZE]; LOCAL_SIZE],
+    dofs: &[ComponentDof; LOCAL_SIZE],
     load: &mut [f64; LOCAL_SIZE],
 ) {
-    let mut local = LocalSystem::default();
-    step_local_matrix(mesh, problem, a0, cell, &mut local);
-    let dofs = pattern.dofs().cell_dofs(&mesh.cells[cell]);
     for (j, d) in dofs.iter().enumerate() {
         if let ComponentDof::Fixed(value) = *d
             && value != 0.0
         {
             for (i, l) in load.iter_mut().enumerate() {
-                *l -= local.matrix[i][j] * value;
+                *l -= matrix[i][j] * value;
             }
         }
     }
