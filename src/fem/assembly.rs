@@ -82,8 +82,8 @@ const LOCAL_ENTRIES: usize = LOCAL_SIZE * LOCAL_SIZE;
 /// Cells per rayon work batch: the buffer of local systems (256 × 1.8 kB ≈ 460 kB) stays
 /// within a core's L2 cache (1 MB on this machine, solver-peers.md) while it is scattered.
 const BATCH: usize = 256;
-/// Fewest cells (or unknowns) per rayon task of a vector assembly: keeps the per-task
-/// overhead small next to about 0.1 µs of work per item.
+/// Cells per kernel call, and fewest unknowns per rayon task, of a vector assembly: keeps
+/// the per-task overhead small next to about 0.1 µs of work per item.
 const VECTOR_CHUNK: usize = 1024;
 
 /// The CSC pattern of the assembled system plus the element-to-value position map.
@@ -383,15 +383,17 @@ impl LoadGather {
     }
 }
 
-/// Assembles a right-hand side only: `kernel(cell, load)` must overwrite `load` with the
-/// local load of `cell`, **already lifted** (the contribution of the cell's eliminated
+/// Assembles a right-hand side only: `kernel(first, loads)` must overwrite each
+/// `loads[k]` with the local load of cell `first + k`, **already lifted** (the contribution of the cell's eliminated
 /// values subtracted by the kernel itself); free entries are summed with the weights of the
 /// [`DofMap`] through `gather` (built for the same pattern and mesh). `loads` holds the
 /// local loads of all cells and is reused across calls, so a time loop allocates nothing per
 /// step.
 ///
-/// With rayon both passes (local loads, then one gathered sum per unknown) run in parallel;
-/// both parallelism modes sum in element order, so they give identical results.
+/// The kernel gets runs of up to `VECTOR_CHUNK` consecutive cells (so it can work on several
+/// cells at once). With rayon both passes (local loads, then one gathered sum per unknown)
+/// run in parallel; both parallelism modes sum in element order, so they give identical
+/// results.
 ///
 /// # Panics
 /// When `gather` was built for another number of unknowns (a programming error).
@@ -401,7 +403,7 @@ pub fn assemble_vector_into(
     parallelism: Parallelism,
     loads: &mut Vec<[f64; LOCAL_SIZE]>,
     rhs: &mut Vec<f64>,
-    kernel: impl Fn(usize, &mut [f64; LOCAL_SIZE]) + Sync,
+    kernel: impl Fn(usize, &mut [[f64; LOCAL_SIZE]]) + Sync,
 ) {
     loads.resize(mesh.cells.len(), [0.0; LOCAL_SIZE]);
     rhs.resize(gather.n(), 0.0);
@@ -414,15 +416,13 @@ pub fn assemble_vector_into(
     };
     match parallelism {
         Parallelism::Serial => {
-            loads.iter_mut().enumerate().for_each(|(c, load)| kernel(c, load));
+            let chunks = loads.chunks_mut(VECTOR_CHUNK).enumerate();
+            chunks.for_each(|(k, chunk)| kernel(k * VECTOR_CHUNK, chunk));
             rhs.iter_mut().enumerate().for_each(|(d, r)| *r = flat(loads, d));
         }
         Parallelism::Rayon => {
-            loads
-                .par_iter_mut()
-                .enumerate()
-                .with_min_len(VECTOR_CHUNK)
-                .for_each(|(c, load)| kernel(c, load));
+            let chunks = loads.par_chunks_mut(VECTOR_CHUNK).enumerate();
+            chunks.for_each(|(k, chunk)| kernel(k * VECTOR_CHUNK, chunk));
             let loads = &*loads;
             rhs.par_iter_mut()
                 .enumerate()
@@ -659,15 +659,18 @@ mod tests {
         }
         let dofs = DofMap::new(&mesh, &constraints, None);
         let pattern = SystemPattern::new(&mesh, dofs, VelocityCoupling::Full).unwrap();
-        let kernel = |cell: usize, load: &mut [f64; LOCAL_SIZE]| {
+        let local = |cell: usize, load: &mut [f64; LOCAL_SIZE]| {
             for (i, l) in load.iter_mut().enumerate() {
                 *l = ((cell * 17 + i * 5) % 23) as f64 / 7.0 - 1.3;
             }
         };
+        let kernel = |first: usize, loads: &mut [[f64; LOCAL_SIZE]]| {
+            loads.iter_mut().enumerate().for_each(|(k, load)| local(first + k, load));
+        };
         let mut expected = vec![0.0; pattern.n()];
         for (c, cell) in mesh.cells.iter().enumerate() {
             let mut load = [0.0; LOCAL_SIZE];
-            kernel(c, &mut load);
+            local(c, &mut load);
             for (i, d) in pattern.dofs.cell_dofs(cell).iter().enumerate() {
                 if let ComponentDof::Free { dof, weight } = *d {
                     expected[dof] += weight * load[i];
