@@ -95,6 +95,9 @@ pub struct SystemPattern {
     /// `positions[cell * 225 + i * 15 + j]`: index in the values of local entry `(i, j)`.
     positions: Vec<u32>,
     diagonal: Vec<usize>,
+    /// `row_idx` as 32-bit indices, kept by [`SystemPattern::keep_compact_row_indices`] for
+    /// the residuals of many solves (a quarter less memory traffic).
+    compact_rows: Option<Vec<u32>>,
 }
 
 /// Assembled values on a [`SystemPattern`] and the right-hand side (eliminated values moved).
@@ -144,7 +147,7 @@ impl SystemPattern {
             cell_positions(&dofs.cell_dofs(cell), &col_ptr, &row_idx, p);
         });
         let diagonal = (0..dofs.n_dofs()).map(|d| find(d, d).unwrap_or(usize::MAX)).collect();
-        Ok(SystemPattern { dofs, col_ptr, row_idx, positions, diagonal })
+        Ok(SystemPattern { dofs, col_ptr, row_idx, positions, diagonal, compact_rows: None })
     }
 
     /// The dof numbering the pattern was built for.
@@ -211,27 +214,19 @@ impl SystemPattern {
     /// `‖r‖₂²`. The squares are summed in fixed chunks, then the chunks in order, so the
     /// result does not depend on how rayon splits the work.
     pub fn symmetric_residual(&self, values: &[f64], x: &[f64], b: &[f64], r: &mut [f64]) -> f64 {
-        const CHUNK: usize = 4096;
-        let partial: Vec<f64> = r
-            .par_chunks_mut(CHUNK)
-            .enumerate()
-            .map(|(k, chunk)| {
-                let mut squares = 0.0;
-                for (i, ri) in chunk.iter_mut().enumerate() {
-                    let col = k * CHUNK + i;
-                    let range = self.col_ptr[col]..self.col_ptr[col + 1];
-                    let ax: f64 = self.row_idx[range.clone()]
-                        .iter()
-                        .zip(&values[range])
-                        .map(|(&row, v)| v * x[row])
-                        .sum();
-                    *ri = b[col] - ax;
-                    squares += *ri * *ri;
-                }
-                squares
-            })
-            .collect();
-        partial.iter().sum()
+        match &self.compact_rows {
+            Some(rows) => symmetric_residual_with(&self.col_ptr, rows, values, x, b, r),
+            None => symmetric_residual_with(&self.col_ptr, &self.row_idx, values, x, b, r),
+        }
+    }
+
+    /// Keeps a 32-bit copy of the row indices for [`SystemPattern::symmetric_residual`]
+    /// (`nnz · 4` bytes): worth it for a pattern that serves many solves (a time loop).
+    /// The indices fit, since the position map is 32-bit too ([`PatternError::TooLarge`]).
+    pub fn keep_compact_row_indices(&mut self) {
+        if self.compact_rows.is_none() {
+            self.compact_rows = Some(self.row_idx.iter().map(|&r| r as u32).collect());
+        }
     }
 
     /// Replaces the prescribed boundary values by those of `constraints` (time-dependent
@@ -328,6 +323,55 @@ pub fn assemble_into(
             }
         }
     }
+}
+
+/// A stored row index, of either width.
+trait RowIndex: Copy + Sync {
+    fn index(self) -> usize;
+}
+
+impl RowIndex for usize {
+    fn index(self) -> usize {
+        self
+    }
+}
+
+impl RowIndex for u32 {
+    fn index(self) -> usize {
+        self as usize
+    }
+}
+
+/// [`SystemPattern::symmetric_residual`] on the columns `col_ptr` / `rows`.
+fn symmetric_residual_with<I: RowIndex>(
+    col_ptr: &[usize],
+    rows: &[I],
+    values: &[f64],
+    x: &[f64],
+    b: &[f64],
+    r: &mut [f64],
+) -> f64 {
+    const CHUNK: usize = 4096;
+    let partial: Vec<f64> = r
+        .par_chunks_mut(CHUNK)
+        .enumerate()
+        .map(|(k, chunk)| {
+            let mut squares = 0.0;
+            for (i, ri) in chunk.iter_mut().enumerate() {
+                let col = k * CHUNK + i;
+                let range = col_ptr[col]..col_ptr[col + 1];
+                let ax: f64 = rows[range.clone()]
+                    .iter()
+                    .zip(&values[range])
+                    .map(|(&row, v)| v * x[row.index()])
+                    .sum();
+                *ri = b[col] - ax;
+                squares += *ri * *ri;
+            }
+            squares
+        })
+        .collect();
+    partial.iter().sum()
 }
 
 /// Where each free unknown's right-hand side comes from: unknown `d` sums
@@ -642,6 +686,11 @@ mod tests {
         assert_eq!(r, expected);
         let norm2: f64 = expected.iter().map(|v| v * v).sum();
         assert!((squares - norm2).abs() <= 1e-12 * norm2, "{squares} against {norm2}");
+        let mut compact = pattern.clone();
+        compact.keep_compact_row_indices();
+        let mut again = vec![f64::NAN; x.len()];
+        assert_eq!(compact.symmetric_residual(&values, &x, &b, &mut again), squares);
+        assert_eq!(again, r);
     }
 
     #[test]
