@@ -286,12 +286,7 @@ impl<'a> ImexStepper<'a> {
             matrix,
             factored_order: 0,
             lifting,
-            boundary_depends_on_time: problem.conditions.iter().any(|c| match c {
-                BoundaryCondition::Velocity { ux, uy } => {
-                    ux.depends_on_time() || uy.depends_on_time()
-                }
-                _ => false,
-            }),
+            boundary_depends_on_time: uses_time(problem.conditions),
             cell_diameter,
             step: 0,
             time: 0.0,
@@ -549,6 +544,14 @@ impl<'a> ImexStepper<'a> {
     }
 }
 
+/// Whether a prescribed velocity among `conditions` uses `t`.
+fn uses_time(conditions: &[BoundaryCondition]) -> bool {
+    conditions.iter().any(|c| match c {
+        BoundaryCondition::Velocity { ux, uy } => ux.depends_on_time() || uy.depends_on_time(),
+        BoundaryCondition::NoSlip | BoundaryCondition::Outflow | BoundaryCondition::Slip => false,
+    })
+}
+
 /// The local step matrix `[[a₀ M + A, Bᵀ], [B, 0]]` of `cell` (no load).
 fn step_local_matrix(
     mesh: &Mesh,
@@ -630,6 +633,23 @@ fn lift_fixed_values(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn boundary_data_use_time_only_through_a_prescribed_velocity_with_t() {
+        let steady = BoundaryCondition::Velocity {
+            ux: ScalarExpr::parse("4*y*(1-y)").unwrap(),
+            uy: ScalarExpr::constant(0.0),
+        };
+        let ramped = BoundaryCondition::Velocity {
+            ux: ScalarExpr::constant(0.0),
+            uy: ScalarExpr::parse("sin(t) * x").unwrap(),
+        };
+        let walls =
+            [BoundaryCondition::NoSlip, BoundaryCondition::Slip, BoundaryCondition::Outflow];
+        assert!(!uses_time(&walls));
+        assert!(!uses_time(&[walls.as_slice(), &[steady.clone()]].concat()));
+        assert!(uses_time(&[steady, ramped]));
+    }
 
     #[test]
     fn bdf_coefficients_are_consistent() {
