@@ -647,7 +647,7 @@ mod tests {
         let walls =
             [BoundaryCondition::NoSlip, BoundaryCondition::Slip, BoundaryCondition::Outflow];
         assert!(!uses_time(&walls));
-        assert!(!uses_time(&[walls.as_slice(), &[steady.clone()]].concat()));
+        assert!(!uses_time(&[walls.as_slice(), std::slice::from_ref(&steady)].concat()));
         assert!(uses_time(&[steady, ramped]));
     }
 
