@@ -195,23 +195,10 @@ impl SystemPattern {
         }
     }
 
-    /// `y = A x` for a symmetric `A` with `values` on this pattern, one column per row of
-    /// the result (`(A x)_i = Σ_k A_ki x_k` by symmetry), rows in parallel: a gather with no
-    /// write conflicts, unlike the scatter of [`SystemPattern::multiply`].
-    pub fn multiply_symmetric(&self, values: &[f64], x: &[f64], y: &mut [f64]) {
-        y.par_iter_mut().enumerate().with_min_len(4096).for_each(|(col, yc)| {
-            let range = self.col_ptr[col]..self.col_ptr[col + 1];
-            *yc = self.row_idx[range.clone()]
-                .iter()
-                .zip(&values[range])
-                .map(|(&r, v)| v * x[r])
-                .sum();
-        });
-    }
-
-    /// `r = b − A x` for a symmetric `A` with `values` on this pattern (rows gathered as in
-    /// [`SystemPattern::multiply_symmetric`], in parallel), in one pass that also returns
-    /// `‖r‖₂²`. The squares are summed in fixed chunks, then the chunks in order, so the
+    /// `r = b − A x` for a symmetric `A` with `values` on this pattern, in one pass that also
+    /// returns `‖r‖₂²`. Each row of `A x` is gathered from one column (`(A x)_i = Σ_k A_ki x_k`
+    /// by symmetry), so rows run in parallel with no write conflicts, unlike the scatter of
+    /// [`SystemPattern::multiply`]. The squares are summed in fixed chunks, then the chunks in order, so the
     /// result does not depend on how rayon splits the work.
     pub fn symmetric_residual(&self, values: &[f64], x: &[f64], b: &[f64], r: &mut [f64]) -> f64 {
         match &self.compact_rows {
@@ -375,15 +362,15 @@ fn symmetric_residual_with<I: RowIndex>(
 }
 
 /// Where each free unknown's right-hand side comes from: unknown `d` sums
-/// `weight[e] · loads[slot[e]]` over `e ∈ start[d]..start[d + 1]`, where `loads` are the
+/// `weight · loads[slot]` over its entries `(slot, weight)` (`start[d]..start[d + 1]`), where `loads` are the
 /// local loads of all cells laid end to end (`slot = LOCAL_SIZE · cell + i`). The entries of
 /// an unknown are in element order, so the gathered sum is the serial scatter's, bit for
 /// bit. Built once per pattern; its size is one entry per free local unknown of each cell.
 #[derive(Clone, Debug)]
 pub struct LoadGather {
     start: Vec<usize>,
-    slot: Vec<u32>,
-    weight: Vec<f64>,
+    /// `(slot, weight)` per entry.
+    entries: Vec<(u32, f64)>,
 }
 
 impl LoadGather {
@@ -393,32 +380,17 @@ impl LoadGather {
     /// When the mesh has more than `u32::MAX / LOCAL_SIZE` cells (about 286 million).
     pub fn new(pattern: &SystemPattern, mesh: &Mesh) -> Self {
         assert!(mesh.cells.len() <= u32::MAX as usize / LOCAL_SIZE, "too many cells");
-        let n = pattern.n();
-        let free = |cell: &[usize; 6]| {
+        let (start, entries) = group_by_unknown(mesh, pattern.n(), |c, cell| {
             let dofs = pattern.dofs.cell_dofs(cell);
             (0..LOCAL_SIZE).filter_map(move |i| match dofs[i] {
-                ComponentDof::Free { dof, weight } => Some((i, dof, weight)),
+                // Fits: c · LOCAL_SIZE + i < u32::MAX by the assertion above.
+                ComponentDof::Free { dof, weight } => {
+                    Some((dof, ((c * LOCAL_SIZE + i) as u32, weight)))
+                }
                 ComponentDof::Fixed(_) => None,
             })
-        };
-        let mut start = vec![0usize; n + 1];
-        for cell in &mesh.cells {
-            free(cell).for_each(|(_, d, _)| start[d + 1] += 1);
-        }
-        for d in 0..n {
-            start[d + 1] += start[d];
-        }
-        let mut fill = start[..n].to_vec();
-        let (mut slot, mut weight) = (vec![0u32; start[n]], vec![0.0; start[n]]);
-        for (c, cell) in mesh.cells.iter().enumerate() {
-            for (i, d, w) in free(cell) {
-                // Fits: c · LOCAL_SIZE + i < u32::MAX by the assertion above.
-                slot[fill[d]] = (c * LOCAL_SIZE + i) as u32;
-                weight[fill[d]] = w;
-                fill[d] += 1;
-            }
-        }
-        LoadGather { start, slot, weight }
+        });
+        LoadGather { start, entries }
     }
 
     /// Number of unknowns.
@@ -427,10 +399,10 @@ impl LoadGather {
     }
 }
 
-/// Assembles a right-hand side only: `kernel(first, loads)` must overwrite each
-/// `loads[k]` with the local load of cell `first + k`, **already lifted** (the contribution of the cell's eliminated
-/// values subtracted by the kernel itself); free entries are summed with the weights of the
-/// [`DofMap`] through `gather` (built for the same pattern and mesh). `loads` holds the
+/// Assembles a right-hand side only: `kernel(first, loads)` must overwrite each `loads[k]`
+/// with the local load of cell `first + k`, **already lifted** (the contribution of the
+/// cell's eliminated values subtracted by the kernel itself); free entries are summed with
+/// the weights of the [`DofMap`] through `gather` (built for the same pattern and mesh). `loads` holds the
 /// local loads of all cells and is reused across calls, so a time loop allocates nothing per
 /// step.
 ///
@@ -452,11 +424,9 @@ pub fn assemble_vector_into(
     loads.resize(mesh.cells.len(), [0.0; LOCAL_SIZE]);
     rhs.resize(gather.n(), 0.0);
     let flat = |loads: &[[f64; LOCAL_SIZE]], d: usize| -> f64 {
-        let range = gather.start[d]..gather.start[d + 1];
-        gather.slot[range.clone()].iter().zip(&gather.weight[range]).fold(0.0, |sum, (&e, w)| {
-            let e = e as usize;
-            sum + w * loads[e / LOCAL_SIZE][e % LOCAL_SIZE]
-        })
+        let loads = loads.as_flattened();
+        let entries = &gather.entries[gather.start[d]..gather.start[d + 1]];
+        entries.iter().fold(0.0, |sum, &(slot, w)| sum + w * loads[slot as usize])
     };
     match parallelism {
         Parallelism::Serial => {
@@ -476,29 +446,29 @@ pub fn assemble_vector_into(
     }
 }
 
-/// The cells touching each unknown in CSR form: unknown `d` is touched by
-/// `cells_of[start[d]..start[d + 1]]`.
-fn cells_of_unknowns<I: Iterator<Item = usize>>(
+/// Items grouped by unknown in CSR form: `entries(c, cell)` yields `(unknown, item)` pairs of
+/// cell `c`; unknown `d` gets `items[start[d]..start[d + 1]]`, in element order.
+fn group_by_unknown<T: Copy + Default, I: Iterator<Item = (usize, T)>>(
     mesh: &Mesh,
     n: usize,
-    free: impl Fn(&[usize; 6]) -> I,
-) -> (Vec<usize>, Vec<usize>) {
+    entries: impl Fn(usize, &[usize; 6]) -> I,
+) -> (Vec<usize>, Vec<T>) {
     let mut start = vec![0usize; n + 1];
-    for cell in &mesh.cells {
-        free(cell).for_each(|d| start[d + 1] += 1);
+    for (c, cell) in mesh.cells.iter().enumerate() {
+        entries(c, cell).for_each(|(d, _)| start[d + 1] += 1);
     }
     for d in 0..n {
         start[d + 1] += start[d];
     }
     let mut fill = start.clone();
-    let mut cells_of = vec![0usize; start[n]];
+    let mut items = vec![T::default(); start[n]];
     for (c, cell) in mesh.cells.iter().enumerate() {
-        for d in free(cell) {
-            cells_of[fill[d]] = c;
+        for (d, item) in entries(c, cell) {
+            items[fill[d]] = item;
             fill[d] += 1;
         }
     }
-    (start, cells_of)
+    (start, items)
 }
 
 /// Class of a velocity unknown carrying both components (slip).
@@ -542,7 +512,7 @@ fn build_columns(
             ComponentDof::Fixed(_) => None,
         })
     };
-    let (start, cells_of) = cells_of_unknowns(mesh, n, free);
+    let (start, cells_of) = group_by_unknown(mesh, n, |c, cell| free(cell).map(move |d| (d, c)));
     let column_rows = |col: usize, rows: &mut Vec<usize>| {
         let first = rows.len();
         rows.push(col);
@@ -640,29 +610,8 @@ mod tests {
     use crate::mesh::structured::rectangle;
 
     #[test]
-    fn symmetric_product_equals_the_general_product_on_symmetric_values() {
-        let mesh = rectangle([0.0, 0.0], [1.0, 1.0], 6, 5, |_, _| [0.0, 0.0]).unwrap();
-        let constraints = vec![NodeConstraint::Free; mesh.nodes.len()];
-        let dofs = DofMap::new(&mesh, &constraints, None);
-        let pattern = SystemPattern::new(&mesh, dofs, VelocityCoupling::Full).unwrap();
-        let (cp, ri) = (pattern.col_ptr(), pattern.row_idx());
-        let mut values = vec![0.0; pattern.nnz()];
-        for col in 0..pattern.n() {
-            for k in cp[col]..cp[col + 1] {
-                let (a, b) = (ri[k].min(col), ri[k].max(col));
-                values[k] = ((a * 31 + b * 7) % 13) as f64 - 6.0;
-            }
-        }
-        let x: Vec<f64> = (0..pattern.n()).map(|i| (i % 5) as f64 - 2.0).collect();
-        let (mut general, mut symmetric) = (vec![0.0; x.len()], vec![1.0; x.len()]);
-        pattern.multiply(&values, &x, &mut general);
-        pattern.multiply_symmetric(&values, &x, &mut symmetric);
-        assert!(general.iter().any(|v| *v != 0.0));
-        assert_eq!(general, symmetric);
-    }
-
-    #[test]
-    fn symmetric_residual_is_b_minus_the_product_and_its_squared_norm() {
+    fn symmetric_residual_is_b_minus_the_general_product_and_its_squared_norm() {
+        // The row gather by symmetry against the column scatter of `multiply`.
         let mesh = rectangle([0.0, 0.0], [1.0, 1.0], 40, 30, |_, _| [0.0, 0.0]).unwrap();
         let constraints = vec![NodeConstraint::Free; mesh.nodes.len()];
         let dofs = DofMap::new(&mesh, &constraints, None);
@@ -679,6 +628,7 @@ mod tests {
         let b: Vec<f64> = (0..pattern.n()).map(|i| (i % 3) as f64).collect();
         let mut ax = vec![0.0; x.len()];
         pattern.multiply(&values, &x, &mut ax);
+        assert!(ax.iter().any(|v| *v != 0.0));
         let mut r = vec![f64::NAN; x.len()];
         let squares = pattern.symmetric_residual(&values, &x, &b, &mut r);
         let expected: Vec<f64> = b.iter().zip(&ax).map(|(b, a)| b - a).collect();
