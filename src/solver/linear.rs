@@ -25,7 +25,6 @@ use std::borrow::Cow;
 use faer::dyn_stack::{MemBuffer, MemStack};
 use faer::perm::PermRef;
 use faer::sparse::SparseColMatRef;
-use faer::sparse::linalg::cholesky::supernodal::SymbolicSupernodalCholesky;
 use faer::sparse::linalg::cholesky::{
     CholeskySymbolicParams, SymbolicCholesky, SymbolicCholeskyRaw, SymmetricOrdering,
     factorize_symbolic_cholesky,
@@ -41,7 +40,7 @@ use super::SolveError;
 use super::split_ldlt::{
     HalfThreads, Halves, PivotRegularization, SplitFactor, SplitSymbolic, faer_regularization,
 };
-use super::supernodal::{SweepSplit, solve_ldlt_in_place, sweep_split};
+use super::supernodal::{SweepSplit, packed_pointers, solve_ldlt_in_place, sweep_split};
 use super::vector_registers::reset_after_faer;
 
 /// Which sparse factorisation is used.
@@ -314,7 +313,8 @@ impl SymbolicSystem {
     pub fn factor_nonzeros(&self) -> Option<usize> {
         match &self.kind {
             SymbolicKind::Ldlt(sym) => Some(match sym.raw() {
-                SymbolicCholeskyRaw::Supernodal(raw) => supernodal_nonzeros(raw),
+                // The packed layout holds exactly the lower triangles.
+                SymbolicCholeskyRaw::Supernodal(raw) => *packed_pointers(raw).last().unwrap_or(&0),
                 SymbolicCholeskyRaw::Simplicial(_) => sym.len_val(),
             }),
             SymbolicKind::SplitLdlt(split) => Some(split.factor_nonzeros()),
@@ -572,19 +572,6 @@ fn shift_pressure_diagonal(pattern: &SystemPattern, values: &[f64], shift: f64) 
         out[pattern.diagonal_position(d)] += shift;
     }
     out
-}
-
-/// Lower-triangle entries of a supernodal factor (column `j` of a block of height `c + r`
-/// holds `c + r − j` of them).
-fn supernodal_nonzeros(raw: &SymbolicSupernodalCholesky<usize>) -> usize {
-    let (begin, end, rows) =
-        (raw.supernode_begin(), raw.supernode_end(), raw.col_ptr_for_row_idx());
-    (0..begin.len())
-        .map(|s| {
-            let cols = end[s] - begin[s];
-            cols * (cols + rows[s + 1] - rows[s]) - cols * (cols - 1) / 2
-        })
-        .sum()
 }
 
 /// The inverse of the permutation `perm` of `0..n`.

@@ -49,7 +49,7 @@ use faer::sparse::{FaerError, SparseColMatRef, SymbolicSparseColMat, SymbolicSpa
 use faer::{Accum, Mat, MatMut, MatRef, Par};
 
 use super::supernodal::{
-    self as supernodal_sweeps, SupernodalLdlt, Supernode, solve_dense_ldlt_in_place,
+    self as supernodal_sweeps, SupernodalLdlt, Supernode, packed_offset, solve_dense_ldlt_in_place,
 };
 
 /// Unknowns in the two halves of a bisected ordering; the separator is the rest, numbered
@@ -385,33 +385,26 @@ impl Half {
         }))
     }
 
-    /// Stored entries of the half's own columns (a straddling supernode's block rows times
-    /// its columns below the separator).
-    fn own_entries(&self) -> usize {
+    /// `(block height, own columns)` of each supernode holding the half's own columns (a
+    /// straddling supernode's columns below the separator only).
+    fn own_blocks(&self) -> impl Iterator<Item = (usize, usize)> + '_ {
         let sym = &self.symbolic;
-        let (begin, rows) = (sym.supernode_begin(), sym.col_ptr_for_row_idx());
-        (0..self.supernodes)
-            .map(|s| {
-                let cols = sym.supernode_end()[s] - begin[s];
-                let height = cols + rows[s + 1] - rows[s];
-                height * cols.min(self.own - begin[s])
-            })
-            .sum()
+        let (begin, end, rows) =
+            (sym.supernode_begin(), sym.supernode_end(), sym.col_ptr_for_row_idx());
+        (0..self.supernodes).map(move |s| {
+            let cols = end[s] - begin[s];
+            (cols + rows[s + 1] - rows[s], cols.min(self.own - begin[s]))
+        })
     }
 
-    /// Lower-triangle entries of the half's own columns (column `j` of a block of height
-    /// `c + r` holds `c + r − j` of them).
+    /// Stored entries of the half's own columns.
+    fn own_entries(&self) -> usize {
+        self.own_blocks().map(|(height, own)| height * own).sum()
+    }
+
+    /// Lower-triangle entries of the half's own columns (their packed length).
     fn own_nonzeros(&self) -> usize {
-        let sym = &self.symbolic;
-        let (begin, rows) = (sym.supernode_begin(), sym.col_ptr_for_row_idx());
-        (0..self.supernodes)
-            .map(|s| {
-                let cols = sym.supernode_end()[s] - begin[s];
-                let height = cols + rows[s + 1] - rows[s];
-                let own = cols.min(self.own - begin[s]);
-                own * height - own * (own - 1) / 2
-            })
-            .sum()
+        self.own_blocks().map(|(height, own)| packed_offset(own, height)).sum()
     }
 
     /// Factorises `M_h` with `A`'s `values` into `l_values`; returns `Lₜₕ D_h Lₜₕᵀ` (dense

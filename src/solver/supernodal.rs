@@ -129,8 +129,9 @@ pub fn pack_in_place(
     values.shrink_to_fit();
 }
 
-/// Packed offset of column `j` of a block of `rows` rows: `Σ_{i<j} (rows − i)`.
-fn packed_offset(j: usize, rows: usize) -> usize {
+/// Packed offset of column `j` of a block of `rows` rows: `Σ_{i<j} (rows − i)`, the
+/// lower-triangle entries of the block's first `j` columns.
+pub(super) fn packed_offset(j: usize, rows: usize) -> usize {
     j * rows - j * j.saturating_sub(1) / 2
 }
 
