@@ -16,7 +16,7 @@
 //! ```
 //!
 //! Newton's step solves `[K + n'(w)] u = f + N(w)` for the new iterate `u` (since
-//! `n'(w) w = 2 N(w)`), so [`add_newton_convection`] also adds the load `(N(w), φ_k e_c)`.
+//! `n'(w) w = 2 N(w)`), so [`add_linearised_convection`] with [`Linearisation::Newton`] also adds the load `(N(w), φ_k e_c)`.
 //! The integrands are of degree 5 (`w` quadratic, `∇φ` linear, `φ` quadratic), so the
 //! degree-5 Dunavant rule integrates them exactly; the mass matrix (degree 4) likewise.
 //!

@@ -232,7 +232,7 @@ impl SymbolicSystem {
     /// Like [`SymbolicSystem::analyse_ordered`]; when `halves` gives the two halves that
     /// `perm` numbers first (a nested dissection's top split,
     /// [`super::ordering::nested_dissection_halves`]) and each has at least
-    /// [`SPLIT_MIN_HALF`] unknowns, the `LDLᵀ` factorises them on two threads
+    /// `SPLIT_MIN_HALF` (500) unknowns, the `LDLᵀ` factorises them on two threads
     /// ([`super::split_ldlt`]); otherwise, or when the halves turn out coupled, as one.
     ///
     /// # Errors
