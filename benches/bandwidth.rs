@@ -14,7 +14,8 @@
 //!
 //! This machine's bandwidth drifts within seconds, so besides the ratios against the
 //! separately measured medians, every timed step follows one two-thread triad pass and is
-//! divided by the bound of that pass; the median of those paired ratios is printed last.
+//! divided by the bound of that pass; the median and quartiles of those paired ratios are
+//! printed last.
 //!
 //! Run: `cargo bench --bench bandwidth`; `CORNERFLOW_BENCH_TRIAD_MB=<MB per array>` (default
 //! 320), `CORNERFLOW_BENCH_STEP_CELLS=<n>` (0 skips the step).
@@ -33,6 +34,8 @@ use cornerflow::solver::{ImexParams, ImexStepper, UnsteadyProblem};
 use rayon::prelude::*;
 
 const REPEATS: usize = 10;
+/// Timed IMEX steps (each paired with a triad pass); odd, so the median is one of them.
+const STEP_REPEATS: usize = 21;
 
 fn env_usize(name: &str, default: usize) -> usize {
     std::env::var(name).ok().and_then(|v| v.parse().ok()).unwrap_or(default)
@@ -95,9 +98,10 @@ struct StepMeasurement {
     l_entries: usize,
     /// Median wall time of one BDF2 step.
     step: f64,
-    /// Median over the steps of step time / bound, each step against the two-thread triad
-    /// pass run just before it (the machine's bandwidth drifts within seconds).
-    paired_ratio: f64,
+    /// Lower quartile, median and upper quartile over the steps of step time / bound, each
+    /// step against the two-thread triad pass run just before it (the machine's bandwidth
+    /// drifts within seconds).
+    paired_ratio: [f64; 3],
     /// Median bandwidth of those passes (GB/s).
     paired_bandwidth: f64,
     /// Mean time per step in the right-hand side and in the solve (stepper's own timings).
@@ -126,11 +130,11 @@ fn imex_step(n: usize, triad_len: usize) -> StepMeasurement {
     let bytes = 2.0 * 8.0 * stepper.factor_nonzeros().unwrap_or(0) as f64;
     let mut arrays = TriadArrays::new(triad_len);
     let mut refinement = 0;
-    let mut ratios = Vec::with_capacity(REPEATS);
-    let mut rates = Vec::with_capacity(REPEATS);
-    let mut times = Vec::with_capacity(REPEATS);
+    let mut ratios = Vec::with_capacity(STEP_REPEATS);
+    let mut rates = Vec::with_capacity(STEP_REPEATS);
+    let mut times = Vec::with_capacity(STEP_REPEATS);
     let mut spent = (std::time::Duration::ZERO, std::time::Duration::ZERO);
-    for _ in 0..REPEATS {
+    for _ in 0..STEP_REPEATS {
         let rate = arrays.pass();
         let before = stepper.timings();
         let t = Instant::now();
@@ -149,11 +153,11 @@ fn imex_step(n: usize, triad_len: usize) -> StepMeasurement {
     StepMeasurement {
         unknowns: stepper.n_unknowns(),
         l_entries: stepper.factor_nonzeros().unwrap_or(0),
-        step: times[REPEATS / 2],
-        paired_ratio: ratios[REPEATS / 2],
-        paired_bandwidth: rates[REPEATS / 2],
-        rhs: spent.0.as_secs_f64() / REPEATS as f64,
-        solve: spent.1.as_secs_f64() / REPEATS as f64,
+        step: times[STEP_REPEATS / 2],
+        paired_ratio: [1, 2, 3].map(|q| ratios[q * (STEP_REPEATS - 1) / 4]),
+        paired_bandwidth: rates[STEP_REPEATS / 2],
+        rhs: spent.0.as_secs_f64() / STEP_REPEATS as f64,
+        solve: spent.1.as_secs_f64() / STEP_REPEATS as f64,
         refinement_steps: refinement,
     }
 }
@@ -188,9 +192,10 @@ fn main() {
             m.solve / bound
         );
     }
+    let [low, median, high] = m.paired_ratio;
     println!(
-        "  each step against a 2-thread triad pass just before it: median bandwidth {:.1} GB/s, \
-         median step / bound = {:.2}",
-        m.paired_bandwidth, m.paired_ratio
+        "  each of {STEP_REPEATS} steps against a 2-thread triad pass just before it: median \
+         bandwidth {:.1} GB/s, median step / bound = {median:.2} (quartiles {low:.2}-{high:.2})",
+        m.paired_bandwidth
     );
 }

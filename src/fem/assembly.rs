@@ -130,7 +130,8 @@ impl SystemPattern {
                 ca == cb || ca >= MIXED || cb >= MIXED
             }
         };
-        let (col_ptr, row_idx) = build_columns(mesh, &dofs, couples);
+        let full = matches!(coupling, VelocityCoupling::Full);
+        let (col_ptr, row_idx) = build_columns(mesh, &dofs, full, couples);
         let nnz = row_idx.len();
         if nnz >= NOT_STORED as usize {
             return Err(PatternError::TooLarge { nnz, max: NOT_STORED as usize - 1 });
@@ -503,6 +504,7 @@ fn component_classes(mesh: &Mesh, dofs: &DofMap) -> Vec<u8> {
 fn build_columns(
     mesh: &Mesh,
     dofs: &DofMap,
+    full: bool,
     couples: impl Fn(usize, usize) -> bool + Sync,
 ) -> (Vec<usize>, Vec<usize>) {
     let n = dofs.n_dofs();
@@ -531,14 +533,27 @@ fn build_columns(
         }
         rows.truncate(kept);
     };
+    // With full coupling, a velocity column's rows are the free unknowns of its cells (its
+    // own among them), so two velocity columns on the same cells (the two components of a
+    // node) have the same rows: the second is copied instead of sorted again.
+    let same_rows_as_previous = |col: usize| {
+        let cells = |c: usize| &cells_of[start[c]..start[c + 1]];
+        full && !dofs.is_pressure(col) && cells(col) == cells(col - 1)
+    };
     // Blocks of columns in parallel, each into its own row list, then stitched in order.
     let blocks: Vec<(Vec<usize>, Vec<usize>)> = (0..n.div_ceil(PATTERN_BLOCK))
         .into_par_iter()
         .map(|b| {
             let (mut lengths, mut rows) = (Vec::with_capacity(PATTERN_BLOCK), Vec::new());
-            for col in b * PATTERN_BLOCK..((b + 1) * PATTERN_BLOCK).min(n) {
+            let first = b * PATTERN_BLOCK;
+            for col in first..((b + 1) * PATTERN_BLOCK).min(n) {
                 let before = rows.len();
-                column_rows(col, &mut rows);
+                if col > first && same_rows_as_previous(col) {
+                    let previous = before - lengths.last().copied().unwrap_or(0);
+                    rows.extend_from_within(previous..before);
+                } else {
+                    column_rows(col, &mut rows);
+                }
                 lengths.push(rows.len() - before);
             }
             (lengths, rows)
@@ -682,6 +697,49 @@ mod tests {
             assemble_vector_into(&gather, &mesh, parallelism, &mut loads, &mut rhs, kernel);
             assert_eq!(rhs, expected, "{parallelism:?}");
         }
+    }
+
+    /// The full pattern, whose second velocity columns are copied from the first, against
+    /// the definition: every pair of free unknowns of one cell, except two different
+    /// pressures; with fixed and slip nodes (one and no unknown per node).
+    #[test]
+    fn full_pattern_is_every_pair_of_free_unknowns_of_a_cell() {
+        let mesh = rectangle([0.0, 0.0], [1.0, 1.0], 5, 4, |_, _| [0.0, 0.0]).unwrap();
+        let mut constraints = vec![NodeConstraint::Free; mesh.nodes.len()];
+        for n in (0..mesh.nodes.len()).filter(|n| n % 7 == 3) {
+            constraints[n] = NodeConstraint::Slip { tangent: [0.6, 0.8] };
+        }
+        for n in (0..mesh.nodes.len()).filter(|n| n % 11 == 5) {
+            constraints[n] = NodeConstraint::Fixed([1.0, 0.0]);
+        }
+        let dofs = DofMap::new(&mesh, &constraints, None);
+        let mut expected = std::collections::BTreeSet::new();
+        for cell in &mesh.cells {
+            let free: Vec<usize> = dofs
+                .cell_dofs(cell)
+                .iter()
+                .filter_map(|d| match *d {
+                    ComponentDof::Free { dof, .. } => Some(dof),
+                    ComponentDof::Fixed(_) => None,
+                })
+                .collect();
+            for &r in &free {
+                for &c in &free {
+                    if r == c || !(dofs.is_pressure(r) && dofs.is_pressure(c)) {
+                        expected.insert((c, r));
+                    }
+                }
+            }
+        }
+        let pattern = SystemPattern::new(&mesh, dofs, VelocityCoupling::Full).unwrap();
+        let (cp, ri) = (pattern.col_ptr(), pattern.row_idx());
+        let stored: std::collections::BTreeSet<(usize, usize)> = (0..pattern.n())
+            .flat_map(|c| ri[cp[c]..cp[c + 1]].iter().map(move |&r| (c, r)))
+            .collect();
+        assert_eq!(stored.len(), ri.len(), "no duplicate rows");
+        assert_eq!(stored, expected);
+        let ascending = |c: usize| ri[cp[c]..cp[c + 1]].windows(2).all(|w| w[0] < w[1]);
+        assert!((0..pattern.n()).all(ascending), "rows ascending in every column");
     }
 
     #[test]

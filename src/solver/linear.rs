@@ -473,15 +473,15 @@ impl SymbolicSystem {
         params: &LinearParams,
     ) -> Result<(Vec<f64>, RefinementInfo), SolveError> {
         let norm_b = norm(rhs);
-        let mut x = vec![0.0; rhs.len()];
         if norm_b == 0.0 {
-            return Ok((x, RefinementInfo { steps: 0, relative_residual: 0.0 }));
+            return Ok((vec![0.0; rhs.len()], RefinementInfo { steps: 0, relative_residual: 0.0 }));
         }
-        let mut residual = rhs.to_vec();
+        // x₀ = A⁻¹ b straight from the factor; each refinement step adds A⁻¹ r.
+        let mut x = rhs.to_vec();
+        self.apply_inverse(factor, &mut x, params.parallelism);
+        let mut residual = vec![0.0; rhs.len()];
         let mut steps = 0;
         loop {
-            self.apply_inverse(factor, &mut residual, params.parallelism);
-            x.iter_mut().zip(&residual).for_each(|(xi, di)| *xi += di);
             let squares = match self.kind {
                 SymbolicKind::Lu(_) => {
                     pattern.multiply(values, &x, &mut residual);
@@ -507,6 +507,8 @@ impl SymbolicSystem {
                 });
             }
             steps += 1;
+            self.apply_inverse(factor, &mut residual, params.parallelism);
+            x.iter_mut().zip(&residual).for_each(|(xi, di)| *xi += di);
         }
     }
 

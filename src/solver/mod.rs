@@ -487,20 +487,56 @@ pub fn assemble_stokes_into(
 }
 
 /// Builds the flow field from the solution vector; when the pressure was pinned, shifts it
-/// to zero mean `∫ p = 0` (P1 integral: `Σ_T |T| (p_0 + p_1 + p_2) / 3`).
+/// to zero mean `∫ p = 0` ([`PressureMean`]).
 pub fn expand_field(mesh: &Mesh, dofs: &DofMap, x: &[f64]) -> FlowField {
+    let mean = dofs.pinned_pressure().map(|_| PressureMean::new(mesh));
+    expand_field_with(dofs, x, mean.as_ref())
+}
+
+/// [`expand_field`] with the mean's weights built beforehand (`Some` exactly when the
+/// pressure was pinned): for a time loop, which expands a field every step.
+pub(crate) fn expand_field_with(
+    dofs: &DofMap,
+    x: &[f64],
+    mean: Option<&PressureMean>,
+) -> FlowField {
     let (velocity, mut pressure) = dofs.expand(x);
-    if dofs.pinned_pressure().is_some() {
-        let (mut integral, mut area) = (0.0, 0.0);
-        for (c, cell) in mesh.cells.iter().enumerate() {
-            let a = AffineTriangle::new(mesh.cell_vertices(c)).area;
-            integral += a * (pressure[cell[0]] + pressure[cell[1]] + pressure[cell[2]]) / 3.0;
-            area += a;
-        }
-        let mean = integral / area;
-        pressure.iter_mut().for_each(|p| *p -= mean);
+    if let Some(mean) = mean {
+        let shift = mean.of(&pressure);
+        pressure.iter_mut().for_each(|p| *p -= shift);
     }
     FlowField { velocity, pressure }
+}
+
+/// The mean `p̄ = ∫ p / |Ω|` of a P1 pressure on a mesh, through one weight per node:
+/// `∫ p = Σ_T |T| (p_0 + p_1 + p_2) / 3 = Σ_v w_v p_v` with `w_v = Σ_{T ∋ v} |T| / 3` (exact
+/// for the P1 interpolant).
+#[derive(Clone, Debug)]
+pub(crate) struct PressureMean {
+    weights: Vec<f64>,
+    area: f64,
+}
+
+impl PressureMean {
+    /// The weights of `mesh`'s vertices.
+    pub(crate) fn new(mesh: &Mesh) -> Self {
+        let mut weights = vec![0.0; mesh.n_vertices];
+        let mut area = 0.0;
+        for (c, cell) in mesh.cells.iter().enumerate() {
+            let a = AffineTriangle::new(mesh.cell_vertices(c)).area;
+            for &v in &cell[..3] {
+                weights[v] += a / 3.0;
+            }
+            area += a;
+        }
+        PressureMean { weights, area }
+    }
+
+    /// `p̄` of the vertex pressures `pressure`.
+    pub(crate) fn of(&self, pressure: &[f64]) -> f64 {
+        let integral: f64 = self.weights.iter().zip(pressure).map(|(w, p)| w * p).sum();
+        integral / self.area
+    }
 }
 
 /// Builds the pattern and assembles the Stokes matrix and right-hand side exactly as
@@ -519,4 +555,25 @@ pub fn assemble_stokes_system(
     let (pattern, _) = build_pattern(mesh, problem, params)?;
     let system = assemble_stokes(&pattern, mesh, problem, params.parallelism)?;
     Ok((pattern, system))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::mesh::structured::rectangle;
+
+    /// The mean of a linear pressure is exact for the P1 weights: over `[0, 3] × [0, 2]`,
+    /// `p = 1 + x + 2y` has mean `1 + 3/2 + 2 · 1 = 4.5` (midpoint of a linear function over
+    /// a rectangle; calculus), on a jittered mesh so the cells differ in area.
+    #[test]
+    fn pressure_mean_of_a_linear_field_is_its_value_at_the_centroid() {
+        let jitter =
+            |i: usize, j: usize| [0.03 * ((i * 7 + j * 3) % 5) as f64, 0.02 * ((i + j) % 3) as f64];
+        let mesh = rectangle([0.0, 0.0], [3.0, 2.0], 9, 7, jitter).unwrap();
+        let mean = PressureMean::new(&mesh);
+        let p: Vec<f64> =
+            mesh.nodes[..mesh.n_vertices].iter().map(|v| 1.0 + v[0] + 2.0 * v[1]).collect();
+        assert!((mean.area - 6.0).abs() < 1e-12, "area {}", mean.area);
+        assert!((mean.of(&p) - 4.5).abs() < 1e-12, "mean {}", mean.of(&p));
+    }
 }

@@ -52,7 +52,8 @@ use crate::mesh::Mesh;
 
 use super::linear::{LinearParams, NumericFactor, SymbolicSystem};
 use super::{
-    SolveError, SolverParams, StokesProblem, build_pattern, expand_field, resolve_boundary,
+    PressureMean, SolveError, SolverParams, StokesProblem, build_pattern, expand_field,
+    expand_field_with, resolve_boundary,
 };
 
 /// An unsteady problem: the data of a Stokes problem, evaluated at each step's time, plus
@@ -171,6 +172,9 @@ pub struct ImexStepper<'a> {
     /// unknowns).
     boundary_depends_on_time: bool,
     cell_diameter: Vec<f64>,
+    /// Weights of the pressure's mean, when the pressure is pinned (closed domains): built
+    /// once, not at every step's [`expand_field_with`].
+    pressure_mean: Option<PressureMean>,
     step: usize,
     time: f64,
     current: FlowField,
@@ -275,6 +279,7 @@ impl<'a> ImexStepper<'a> {
         let gather = LoadGather::new(&pattern, mesh);
         let cell_diameter = (0..mesh.n_cells()).map(|c| mesh.longest_edge(c)).collect();
         let lifting = LiftingCells::new(mesh, &pattern);
+        let pattern_pins_pressure = pattern.dofs().pinned_pressure().is_some();
         let mut stepper = ImexStepper {
             mesh,
             problem,
@@ -288,6 +293,7 @@ impl<'a> ImexStepper<'a> {
             lifting,
             boundary_depends_on_time: uses_time(problem.conditions),
             cell_diameter,
+            pressure_mean: pattern_pins_pressure.then(|| PressureMean::new(mesh)),
             step: 0,
             time: 0.0,
             derivative: vec![[0.0; 2]; current.velocity.len()],
@@ -377,7 +383,7 @@ impl<'a> ImexStepper<'a> {
             &self.linear,
         )?;
         self.timings.solve += start.elapsed();
-        let next = expand_field(self.mesh, self.pattern.dofs(), &x);
+        let next = expand_field_with(self.pattern.dofs(), &x, self.pressure_mean.as_ref());
         let (courant, max_speed) = self.courant(&next);
         let info = StepInfo {
             step: self.step + 1,
