@@ -43,7 +43,10 @@ use super::krylov::{GmresParams, PreconditionedGmres};
 use super::linear::{
     FillOrdering, LinearParams, NonsymmetricSolver, NumericFactor, SolverKind, SymbolicSystem,
 };
-use super::{SolveError, SolverParams, StageTimings, StokesProblem, build_pattern, expand_field};
+use super::{
+    PressureMean, SolveError, SolverParams, StageTimings, StokesProblem, build_pattern,
+    expand_field_with,
+};
 
 /// Forcing term of the inexact Newton steps with GMRES: the linear residual is at most this
 /// fraction of the nonlinear residual (keeps the quadratic phase down to `FORCING`; see
@@ -207,6 +210,9 @@ pub fn solve_steady_navier_stokes(
         timings: StageTimings::default(),
         pressure_fixed: pattern.dofs().pinned_pressure().is_some(),
     };
+    // The pressure-mean weights once for every iterate, not once per Newton step.
+    let pressure_mean = pattern.dofs().pinned_pressure().map(|_| PressureMean::new(mesh));
+    let expand = |x: &[f64]| expand_field_with(pattern.dofs(), x, pressure_mean.as_ref());
     let schedule = viscosity_schedule(problem.viscosity, newton);
     for (stage, &viscosity) in schedule.iter().enumerate() {
         let last_stage = stage + 1 == schedule.len();
@@ -216,7 +222,7 @@ pub fn solve_steady_navier_stokes(
         for k in 0..=newton.max_iterations {
             let kind =
                 if k < newton.picard_steps { Linearisation::Picard } else { Linearisation::Newton };
-            let w = expand_field(mesh, pattern.dofs(), &x);
+            let w = expand(&x);
             solver.assemble(viscosity, Some(&w), kind)?;
             let residual = solver.residual_norm(&x) / scale;
             info.final_residual = residual;
@@ -247,13 +253,13 @@ pub fn solve_steady_navier_stokes(
             return Err(NewtonError::NotConverged {
                 iterations,
                 viscosity,
-                last: Box::new(expand_field(mesh, pattern.dofs(), &x)),
+                last: Box::new(expand(&x)),
                 info: Box::new(info),
             });
         }
     }
     info.timings = solver.timings;
-    Ok((expand_field(mesh, pattern.dofs(), &x), info))
+    Ok((expand(&x), info))
 }
 
 /// The linear solver of the Newton steps, analysed once for the pattern.
