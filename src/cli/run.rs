@@ -21,8 +21,8 @@ use cornerflow::output::vtu::{
 use cornerflow::post::{self, FluidProperties, ReferenceScales, VolumeForceTerms, WallReference};
 use cornerflow::solver::{
     FillOrdering, NewtonError, NewtonInfo, NewtonParams, NonsymmetricSolver, SolveError, SolveInfo,
-    SolveStage, SolverKind, SolverParams, StageTimings, StokesProblem, solve_steady_navier_stokes,
-    solve_stokes_observed,
+    SolverKind, SolverParams, StageTimings, StokesProblem, solve_steady_navier_stokes,
+    solve_stokes,
 };
 use serde_json::{Value, json};
 
@@ -67,48 +67,16 @@ pub fn run(args: &RunArgs) -> anyhow::Result<()> {
         return run_unsteady(&case, &mesh, &setup);
     }
     let clock = Instant::now();
-    // The stream function's matrix depends on the mesh only: it is factorised on a second
-    // thread while the flow's matrix is (the sequential sparse factorisation leaves one core
-    // idle; the stages before it use both cores, so a Stokes solve lets the thread start
-    // only then). Measured on the 1M-unknown default case: README, "Performance"; writing
-    // mesh.vtu on that thread as well was no faster (memory contention).
-    let (solved, psi_solver) = std::thread::scope(|scope| {
-        let (start_psi, psi_go) = std::sync::mpsc::channel::<()>();
-        let mesh_ref = &mesh;
-        let prepare = case.output.solution.then(|| {
-            scope.spawn(move || {
-                // A closed channel without a message: the flow solve failed early.
-                psi_go.recv().ok().map(|()| post::StreamFunctionSolver::new(mesh_ref))
-            })
-        });
-        let solved = match case.model.equations {
-            Equations::Stokes => {
-                let mut observe = |stage| {
-                    if stage == SolveStage::Factorisation {
-                        let _ = start_psi.send(());
-                    }
-                };
-                solve_steady_stokes(&case, &mesh, args, &mut observe).and_then(|(field, info)| {
-                    if let Some(dir) = &args.export_system {
-                        super::export::export_system(dir, &case, &mesh, args.linear_solver, &info)?;
-                    }
-                    Ok((field, solver_json(&info)))
-                })
+    let (field, solver) = match case.model.equations {
+        Equations::Stokes => {
+            let (field, info) = solve_steady_stokes(&case, &mesh, args)?;
+            if let Some(dir) = &args.export_system {
+                super::export::export_system(dir, &case, &mesh, args.linear_solver, &info)?;
             }
-            Equations::NavierStokes => {
-                let _ = start_psi.send(());
-                solve_steady_navier_stokes_stage(&case, &mesh, &out, args)
-            }
-        };
-        drop(start_psi);
-        let psi_solver = prepare.and_then(|handle| {
-            handle.join().unwrap_or_else(|_| {
-                Some(Err(post::PostError::StreamFunction { reason: "its thread panicked".into() }))
-            })
-        });
-        (solved, psi_solver)
-    });
-    let (field, solver) = solved?;
+            (field, solver_json(&info))
+        }
+        Equations::NavierStokes => solve_steady_navier_stokes_stage(&case, &mesh, &out, args)?,
+    };
     let solve_time = clock.elapsed();
     let clock = Instant::now();
     let measured = measure_singular_corners(&case.domain, &mesh, &field, &corners.reports);
@@ -119,7 +87,7 @@ pub fn run(args: &RunArgs) -> anyhow::Result<()> {
     let forces = report_forces(&case, &mesh, &field, convecting, &out)?;
     let post_time = clock.elapsed();
     let clock = Instant::now();
-    write_solution(&case, &mesh, &field, psi_solver, &out)?;
+    write_solution(&case, &mesh, &field, &out)?;
     let output_time = clock.elapsed();
     let summary = json!({
         "case": case.name,
@@ -287,7 +255,6 @@ fn solve_steady_stokes(
     case: &Case,
     mesh: &Mesh,
     args: &RunArgs,
-    observe: &mut dyn FnMut(SolveStage),
 ) -> anyhow::Result<(FlowField, SolveInfo)> {
     let kind = solver_kind(args.linear_solver);
     let ordering = fill_ordering(args.ordering);
@@ -295,8 +262,7 @@ fn solve_steady_stokes(
     let stage = Stage::start("solve", &format!("steady Stokes, Taylor–Hood P2–P1, sparse {name}"));
     let problem = StokesProblem::from_case(case);
     let params = SolverParams { kind, ordering, ..SolverParams::default() };
-    let (field, info) = solve_stokes_observed(mesh, &problem, &params, observe)
-        .map_err(|e| solve_error(case, e))?;
+    let (field, info) = solve_stokes(mesh, &problem, &params).map_err(|e| solve_error(case, e))?;
     stage.done(&format!(
         "{} unknowns, relative residual {:.1e} after {} refinement step(s){}",
         info.n_velocity_dofs + info.n_pressure_dofs,
@@ -378,24 +344,14 @@ fn report_forces(
     Ok(Value::Array(parts))
 }
 
-/// Writes `solution.vtu`, with the stream function from the prepared solver when there is one.
-fn write_solution(
-    case: &Case,
-    mesh: &Mesh,
-    field: &FlowField,
-    psi_solver: Option<Result<post::StreamFunctionSolver, post::PostError>>,
-    out: &Path,
-) -> anyhow::Result<()> {
+/// Writes `solution.vtu` with the derived fields (see [`write_field_vtu`]).
+fn write_solution(case: &Case, mesh: &Mesh, field: &FlowField, out: &Path) -> anyhow::Result<()> {
     if !case.output.solution {
         return Ok(());
     }
     let stage = Stage::start("output", "derived fields and solution.vtu");
     let path = out.join("solution.vtu");
-    let psi = match psi_solver {
-        Some(solver) => solver?.solve(mesh, field)?,
-        None => post::stream_function(mesh, field)?,
-    };
-    write_vtu_with_psi(case, mesh, field, &psi, &path, &[])?;
+    write_field_vtu(case, mesh, field, &path)?;
     stage.done(&format!("wrote {}", path.display()));
     Ok(())
 }

@@ -72,26 +72,27 @@ pub fn node_keys(mesh: &Mesh) -> Vec<Option<DissectionKey>> {
     home.into_iter().map(|t| t.map(TreeNode::post_order_key)).collect()
 }
 
-/// The nodes that lie in some cell, in dissection order.
-pub fn node_order(mesh: &Mesh) -> Vec<usize> {
-    let mut keyed: Vec<(DissectionKey, usize)> = node_keys(mesh)
-        .into_iter()
-        .enumerate()
-        .filter_map(|(node, key)| key.map(|k| (k, node)))
-        .collect();
-    keyed.sort_unstable();
-    keyed.into_iter().map(|(_, node)| node).collect()
+/// The half of the top split a key's tree node lies in: `Some(0)` (first) or `Some(1)`
+/// (second) below the root, `None` for the root, whose nodes form the top separator. In
+/// key order the first half comes before the second and the separator last.
+pub fn top_half(key: &DissectionKey) -> Option<u64> {
+    (key.1.0 > 0).then_some(key.0 >> 63)
 }
 
 /// A cell's centroid and bounding box: what the bisection reads, kept in one array that is
-/// reordered with the cells so that every pass over a subtree reads contiguous memory.
+/// reordered with the cells so that every pass over a subtree reads contiguous memory; and
+/// the leaf the bisection puts the cell in.
 #[derive(Clone, Copy, Debug)]
 struct CellBox {
     centroid: [f64; 2],
     lo: [f64; 2],
     hi: [f64; 2],
     cell: usize,
+    leaf: TreeNode,
 }
+
+/// Cells of a subtree above which its two halves are bisected on two threads.
+const PARALLEL_CELLS: usize = 8192;
 
 /// The leaf of every cell in the recursive median bisection of the cell centroids.
 fn cell_leaves(mesh: &Mesh) -> Vec<TreeNode> {
@@ -109,24 +110,35 @@ fn cell_leaves(mesh: &Mesh) -> Vec<TreeNode> {
                 lo: [p[0][0].min(p[1][0]).min(p[2][0]), p[0][1].min(p[1][1]).min(p[2][1])],
                 hi: [p[0][0].max(p[1][0]).max(p[2][0]), p[0][1].max(p[1][1]).max(p[2][1])],
                 cell,
+                leaf: TreeNode::ROOT,
             }
         })
         .collect();
+    bisect(&mut boxes, TreeNode::ROOT);
     let mut leaves = vec![TreeNode::ROOT; mesh.cells.len()];
-    // Explicit stack instead of recursion: (range of `boxes`, tree node).
-    let mut stack = vec![(0, boxes.len(), TreeNode::ROOT)];
-    while let Some((start, end, tree)) = stack.pop() {
-        let cells = &mut boxes[start..end];
-        if cells.len() <= LEAF_CELLS || tree.depth == MAX_DEPTH {
-            cells.iter().for_each(|b| leaves[b.cell] = tree);
-            continue;
-        }
-        let (axis, mid) = best_cut(cells);
-        cells.select_nth_unstable_by(mid, |a, b| a.centroid[axis].total_cmp(&b.centroid[axis]));
-        stack.push((start, start + mid, tree.child(false)));
-        stack.push((start + mid, end, tree.child(true)));
-    }
+    boxes.iter().for_each(|b| leaves[b.cell] = b.leaf);
     leaves
+}
+
+/// Splits `cells`, the subtree `tree`, recursively until at most [`LEAF_CELLS`] remain and
+/// records every cell's leaf; the halves of large subtrees on two threads (the result does
+/// not depend on the threads). The recursion depth is at most [`MAX_DEPTH`].
+fn bisect(cells: &mut [CellBox], tree: TreeNode) {
+    if cells.len() <= LEAF_CELLS || tree.depth == MAX_DEPTH {
+        cells.iter_mut().for_each(|b| b.leaf = tree);
+        return;
+    }
+    let (axis, mid) = best_cut(cells);
+    cells.select_nth_unstable_by(mid, |a, b| a.centroid[axis].total_cmp(&b.centroid[axis]));
+    let parallel = cells.len() >= PARALLEL_CELLS;
+    let (left, right) = cells.split_at_mut(mid);
+    let (left_tree, right_tree) = (tree.child(false), tree.child(true));
+    if parallel {
+        rayon::join(|| bisect(left, left_tree), || bisect(right, right_tree));
+    } else {
+        bisect(left, left_tree);
+        bisect(right, right_tree);
+    }
 }
 
 /// Fractions of the cells left of a candidate cut.
@@ -213,5 +225,22 @@ mod tests {
         assert_eq!(rl.common_ancestor(rr), r);
         assert_eq!(rl.common_ancestor(l), root);
         assert_eq!(rr.common_ancestor(r), r);
+    }
+
+    #[test]
+    fn keys_do_not_depend_on_the_threads() {
+        // 9,600 cells: the top splits run on two threads ([`PARALLEL_CELLS`]).
+        let jitter = |i: usize, j: usize| [0.05 * ((i * 5 + j * 3) % 7) as f64 - 0.15, 0.0];
+        let mesh = crate::mesh::structured::rectangle([0.0, 0.0], [3.0, 1.0], 120, 40, jitter)
+            .expect("valid mesh");
+        let keys_on = |threads: usize| {
+            let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
+            pool.install(|| node_keys(&mesh))
+        };
+        let one = keys_on(1);
+        assert!(one.iter().all(Option::is_some));
+        assert_eq!(one, keys_on(2));
+        let split = one.iter().flatten().filter(|key| top_half(key).is_some()).count();
+        assert!(split > 0 && split < one.len(), "both halves and a separator");
     }
 }

@@ -9,8 +9,9 @@
 //! `(∇ψ_h, ∇φ) = (u_h, ∂φ/∂y) − (v_h, ∂φ/∂x)` for all P2 `φ` vanishing at the pin, whose
 //! matrix is symmetric positive definite on a connected mesh; it is solved by a sparse
 //! `LDLᵀ` factorisation (faer; no pivoting is needed for a definite matrix) in the mesh's
-//! nested-dissection order ([`crate::mesh::dissection`]), whose triangular solves run through
-//! [`crate::solver::supernodal`] (two threads where the elimination tree splits). If the velocity is the exact curl of a P2 function
+//! nested-dissection order ([`crate::mesh::dissection`]): the two halves of the top split on
+//! two threads ([`crate::solver::split_ldlt`]), or in one piece on small meshes, with the
+//! triangular solves of [`crate::solver::supernodal`]. If the velocity is the exact curl of a P2 function
 //! (divergence-free with zero net flux through every hole boundary), the minimum is zero and
 //! `ψ_h` is that function up to the pinned constant. Otherwise (non-solenoidal field, or net
 //! flux around a hole) `ψ_h` is the least-squares best fit.
@@ -30,8 +31,10 @@ use crate::fem::FlowField;
 use crate::fem::quadrature::triangle_rule;
 use crate::fem::shape::{p2_gradients, p2_values};
 use crate::mesh::Mesh;
-use crate::mesh::dissection::node_order;
+use crate::mesh::dissection::{node_keys, top_half};
+use crate::solver::split_ldlt::{Halves, SPLIT_MIN_HALF, SplitFactor, SplitSymbolic};
 use crate::solver::supernodal::{SweepSplit, solve_ldlt_in_place, sweep_split};
+use crate::solver::vector_registers::reset_after_faer;
 
 /// P2 stream function `ψ` per mesh node, `ψ = 0` at the first vertex of the first boundary
 /// edge (see the module docs for the formulation).
@@ -51,15 +54,26 @@ pub fn stream_function(mesh: &Mesh, field: &FlowField) -> Result<Vec<f64>, PostE
 pub struct StreamFunctionSolver {
     /// Unknown index of every node; the pinned node has none.
     dof: Vec<Option<usize>>,
-    symbolic: SymbolicCholesky<usize>,
-    l_values: Vec<f64>,
-    /// Where the triangular solves split over two threads.
-    split: Option<SweepSplit>,
+    factor: Factor,
+}
+
+/// The factorised matrix in one of two forms.
+enum Factor {
+    /// The halves of the top split factorised on two threads (large meshes).
+    Split { symbolic: Box<SplitSymbolic>, values: SplitFactor },
+    /// One factorisation (small meshes).
+    Whole {
+        symbolic: Box<SymbolicCholesky<usize>>,
+        l_values: Vec<f64>,
+        /// Where the triangular solves split over two threads.
+        split: Option<SweepSplit>,
+    },
 }
 
 impl StreamFunctionSolver {
     /// Assembles the pinned P2 stiffness matrix and factorises it (`LDLᵀ` in the mesh's
-    /// nested-dissection order: measured faster than AMD on the matrix graph).
+    /// nested-dissection order: measured faster than AMD on the matrix graph; the halves of
+    /// its top split on two threads when each has [`SPLIT_MIN_HALF`] unknowns).
     ///
     /// # Errors
     /// [`PostError::StreamFunction`] for a disconnected mesh or a failed factorisation.
@@ -82,21 +96,17 @@ impl StreamFunctionSolver {
             .collect();
         let n_dofs = mesh.nodes.len() - 1;
         let matrix = stiffness(mesh, &dof, n_dofs);
-        let perm: Vec<usize> = node_order(mesh).into_iter().filter_map(|n| dof[n]).collect();
+        let (perm, halves) = dissection_order(mesh, &dof);
         if perm.len() != n_dofs {
             return Err(PostError::StreamFunction { reason: "a node lies in no cell".into() });
         }
-        let mut inverse = vec![usize::MAX; n_dofs];
-        perm.iter().enumerate().for_each(|(k, &d)| inverse[d] = k);
-        let ordering = SymmetricOrdering::Custom(PermRef::new_checked(&perm, &inverse, n_dofs));
-        let factored = factorize(matrix.as_ref(), ordering);
-        // faer ran on this thread only (sequential factorisation).
-        crate::solver::vector_registers::reset_current_thread();
-        let (symbolic, l_values) = factored.map_err(|e| PostError::StreamFunction {
-            reason: format!("LDLᵀ factorisation: {e:?}"),
+        let factored = factorize(matrix.as_ref(), &perm, halves);
+        // faer ran on this thread and, for the halves, on rayon's workers.
+        reset_after_faer();
+        let factor = factored.map_err(|e| PostError::StreamFunction {
+            reason: format!("LDLᵀ factorisation: {e}"),
         })?;
-        let split = sweep_split(&symbolic);
-        Ok(StreamFunctionSolver { dof, symbolic, l_values, split })
+        Ok(StreamFunctionSolver { dof, factor })
     }
 
     /// `ψ` of `field` (one velocity per node of the mesh this solver was built for).
@@ -112,7 +122,12 @@ impl StreamFunctionSolver {
             });
         }
         let mut x = load(mesh, field, &self.dof);
-        solve_ldlt_in_place(&self.symbolic, &self.l_values, self.split.as_ref(), &mut x);
+        match &self.factor {
+            Factor::Split { symbolic, values } => symbolic.solve_in_place(values, &mut x),
+            Factor::Whole { symbolic, l_values, split } => {
+                solve_ldlt_in_place(symbolic, l_values, split.as_ref(), &mut x)
+            }
+        }
         let psi: Vec<f64> = self.dof.iter().map(|d| d.map_or(0.0, |i| x[i])).collect();
         match psi.iter().position(|v| !v.is_finite()) {
             Some(node) => Err(PostError::StreamFunction {
@@ -123,21 +138,46 @@ impl StreamFunctionSolver {
     }
 }
 
-/// The sparse `LDLᵀ` factorisation of the symmetric positive definite `A` (lower triangle
-/// read) with the given ordering: the symbolic structure and the factor's values.
+/// The unknowns in the mesh's nested-dissection order (`perm[k]` = the unknown eliminated
+/// `k`-th; the pinned node left out) with the number of them in each half of the top split,
+/// which `perm` numbers first, before the top separator.
+fn dissection_order(mesh: &Mesh, dof: &[Option<usize>]) -> (Vec<usize>, Halves) {
+    let mut keyed: Vec<_> =
+        node_keys(mesh).into_iter().zip(dof).filter_map(|(key, d)| Some((key?, (*d)?))).collect();
+    keyed.sort_unstable();
+    let count = |side| keyed.iter().filter(|(key, _)| top_half(key) == Some(side)).count();
+    let halves = Halves { first: count(0), second: count(1) };
+    (keyed.into_iter().map(|(_, d)| d).collect(), halves)
+}
+
+/// The sparse `LDLᵀ` factorisation of the symmetric positive definite `A` (both triangles
+/// stored) in the order `perm`: split at `halves` when both are large enough, else whole.
 fn factorize(
     matrix: SparseColMatRef<'_, usize, f64>,
-    ordering: SymmetricOrdering<'_, usize>,
-) -> Result<(SymbolicCholesky<usize>, Vec<f64>), Box<dyn std::fmt::Debug>> {
-    let boxed =
-        |e: &dyn std::fmt::Debug| -> Box<dyn std::fmt::Debug> { Box::new(format!("{e:?}")) };
+    perm: &[usize],
+    halves: Halves,
+) -> Result<Factor, String> {
+    let n = perm.len();
+    let mut inverse = vec![usize::MAX; n];
+    perm.iter().enumerate().for_each(|(k, &d)| inverse[d] = k);
+    let debug = |e: &dyn std::fmt::Debug| format!("{e:?}");
+    if halves.first.min(halves.second) >= SPLIT_MIN_HALF {
+        let signs = vec![1; n];
+        let analysed = SplitSymbolic::analyse(matrix.symbolic(), perm, &inverse, halves, &signs);
+        if let Some(symbolic) = analysed.map_err(|e| debug(&e))? {
+            let mut values = SplitFactor::default();
+            symbolic.factorize(matrix.val(), None, Par::Seq, &mut values)?;
+            return Ok(Factor::Split { symbolic: Box::new(symbolic), values });
+        }
+    }
+    let ordering = SymmetricOrdering::Custom(PermRef::new_checked(perm, &inverse, n));
     let symbolic = factorize_symbolic_cholesky(
         matrix.symbolic(),
         Side::Lower,
         ordering,
         CholeskySymbolicParams::default(),
     )
-    .map_err(|e| boxed(&e))?;
+    .map_err(|e| debug(&e))?;
     let par = Par::Seq;
     let mut l_values = vec![0.0; symbolic.len_val()];
     let scratch = symbolic.factorize_numeric_ldlt_scratch::<f64>(par, Default::default());
@@ -152,8 +192,9 @@ fn factorize(
             MemStack::new(&mut buf),
             Default::default(),
         )
-        .map_err(|e| boxed(&e))?;
-    Ok((symbolic, l_values))
+        .map_err(|e| debug(&e))?;
+    let split = sweep_split(&symbolic);
+    Ok(Factor::Whole { symbolic: Box::new(symbolic), l_values, split })
 }
 
 /// Number of connected pieces of the mesh (cells sharing a vertex are connected), by
@@ -313,30 +354,53 @@ fn load(mesh: &Mesh, field: &FlowField, dof: &[Option<usize>]) -> Vec<f64> {
 mod tests {
     use super::*;
 
-    #[test]
-    fn one_factorisation_serves_several_fields_exactly() {
-        // ψ₁ = x² − y² and ψ₂ = xy lie in P2 and their curls (u, v) = (∂ψ/∂y, −∂ψ/∂x) =
-        // (−2y, −2x) and (x, −y) are interpolated exactly, so the least-squares ψ_h equals ψ
-        // up to the pinned constant (elementary calculus), from one factorisation for both.
-        let mesh =
-            crate::mesh::structured::rectangle([0.0, 0.0], [2.0, 1.0], 4, 3, |_, _| [0.0, 0.0])
-                .unwrap();
+    /// ψ₁ = x² − y² and ψ₂ = xy lie in P2 and their curls (u, v) = (∂ψ/∂y, −∂ψ/∂x) =
+    /// (−2y, −2x) and (x, −y) are interpolated exactly, so the least-squares ψ_h equals ψ up
+    /// to the pinned constant (elementary calculus), from one factorisation for both; `solver`
+    /// gives the same values as [`stream_function`]. Returns the largest error.
+    fn largest_error_on_exact_curls(mesh: &Mesh, solver: &StreamFunctionSolver) -> f64 {
         let psi_exact: [fn(f64, f64) -> f64; 2] = [|x, y| x * x - y * y, |x, y| x * y];
         let curls: [fn(f64, f64) -> [f64; 2]; 2] = [|x, y| [-2.0 * y, -2.0 * x], |x, y| [x, -y]];
-        let solver = StreamFunctionSolver::new(&mesh).unwrap();
         let pin = mesh.boundary_edges[0].nodes[0];
+        let mut largest: f64 = 0.0;
         for (psi_of, curl) in psi_exact.iter().zip(curls) {
             let field = FlowField {
                 velocity: mesh.nodes.iter().map(|p| curl(p[0], p[1])).collect(),
                 pressure: vec![0.0; mesh.n_vertices],
             };
-            let psi = solver.solve(&mesh, &field).unwrap();
-            assert_eq!(psi, stream_function(&mesh, &field).unwrap());
+            let psi = solver.solve(mesh, &field).unwrap();
+            assert_eq!(psi, stream_function(mesh, &field).unwrap());
             let shift = psi_of(mesh.nodes[pin][0], mesh.nodes[pin][1]);
             for (n, p) in mesh.nodes.iter().enumerate() {
-                assert!((psi[n] - (psi_of(p[0], p[1]) - shift)).abs() < 1e-11, "node {n}");
+                largest = largest.max((psi[n] - (psi_of(p[0], p[1]) - shift)).abs());
             }
         }
+        largest
+    }
+
+    #[test]
+    fn one_factorisation_serves_several_fields_exactly() {
+        let mesh =
+            crate::mesh::structured::rectangle([0.0, 0.0], [2.0, 1.0], 4, 3, |_, _| [0.0, 0.0])
+                .unwrap();
+        let solver = StreamFunctionSolver::new(&mesh).unwrap();
+        assert!(matches!(solver.factor, Factor::Whole { .. }), "too small to split");
+        assert!(largest_error_on_exact_curls(&mesh, &solver) < 1e-11);
+    }
+
+    #[test]
+    fn halves_factorised_on_two_threads_give_the_exact_stream_function() {
+        // 40 × 20 jittered cells: about 3,300 nodes, each half of the top split well above
+        // SPLIT_MIN_HALF; the pinned node is on the boundary, so it may leave any part.
+        let jitter = |i: usize, j: usize| {
+            let s = ((i * 7 + j * 13) % 11) as f64 / 11.0 - 0.5;
+            [0.2 * s, -0.15 * s]
+        };
+        let mesh =
+            crate::mesh::structured::rectangle([0.0, 0.0], [2.0, 1.0], 40, 20, jitter).unwrap();
+        let solver = StreamFunctionSolver::new(&mesh).unwrap();
+        assert!(matches!(solver.factor, Factor::Split { .. }), "large enough to split");
+        assert!(largest_error_on_exact_curls(&mesh, &solver) < 1e-10);
     }
 
     #[test]

@@ -38,7 +38,8 @@ use crate::fem::assembly::{Parallelism, SystemPattern};
 
 use super::SolveError;
 use super::split_ldlt::{
-    HalfThreads, Halves, PivotRegularization, SplitFactor, SplitSymbolic, faer_regularization,
+    HalfThreads, Halves, PivotRegularization, SPLIT_MIN_HALF, SplitFactor, SplitSymbolic,
+    faer_regularization,
 };
 use super::supernodal::{SweepSplit, packed_pointers, solve_ldlt_in_place, sweep_split};
 use super::vector_registers::reset_after_faer;
@@ -159,11 +160,6 @@ enum SymbolicKind {
     SplitLdlt(Box<SplitSymbolic>),
     Lu(SymbolicLu<usize>),
 }
-
-/// Unknowns each half of a nested dissection needs before [`SymbolicSystem`] factorises the
-/// halves on two threads ([`super::split_ldlt`]); smaller systems factorise in milliseconds
-/// either way.
-const SPLIT_MIN_HALF: usize = 500;
 
 /// A numeric factorisation of one set of matrix values.
 #[derive(Debug)]

@@ -226,6 +226,11 @@ pub enum SolveError {
 
 /// Solves the steady Stokes problem on `mesh`.
 ///
+/// With [`SolverParams::parallelism`] = [`Parallelism::Rayon`] the pattern is built while
+/// the nested-dissection ordering is computed, and the system is assembled while the
+/// pattern is analysed; [`StageTimings::assembly`] and [`StageTimings::symbolic`] then
+/// overlap. Measured on the 1M-unknown default case: README, "Performance".
+///
 /// # Errors
 /// Any [`SolveError`]: invalid viscosity, empty mesh, missing or invalid boundary data,
 /// incompatible flux in a closed domain, failed factorisation, non-finite solution or a
@@ -238,41 +243,9 @@ pub fn solve_stokes(
     problem: &StokesProblem,
     params: &SolverParams,
 ) -> Result<(FlowField, SolveInfo), SolveError> {
-    solve_stokes_observed(mesh, problem, params, &mut |_| {})
-}
-
-/// The stages of [`solve_stokes_observed`], announced as each begins.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum SolveStage {
-    /// Dof numbering, sparsity pattern and fill-reducing ordering.
-    Pattern,
-    /// Assembly and symbolic analysis (concurrent with [`Parallelism::Rayon`]).
-    Assembly,
-    /// Numeric factorisation (sequential by default: a caller may use the other core).
-    Factorisation,
-    /// Triangular solves and refinement.
-    Substitution,
-}
-
-/// [`solve_stokes`], calling `observe` as each [`SolveStage`] begins.
-///
-/// With [`SolverParams::parallelism`] = [`Parallelism::Rayon`] the pattern is built while
-/// the nested-dissection ordering is computed, and the system is assembled while the
-/// pattern is analysed; [`StageTimings::assembly`] and [`StageTimings::symbolic`] then
-/// overlap. Measured on the 1M-unknown default case: README, "Performance".
-///
-/// # Errors
-/// As [`solve_stokes`].
-pub fn solve_stokes_observed(
-    mesh: &Mesh,
-    problem: &StokesProblem,
-    params: &SolverParams,
-    observe: &mut dyn FnMut(SolveStage),
-) -> Result<(FlowField, SolveInfo), SolveError> {
     let mut timings = StageTimings::default();
     let linear = params.linear();
     let join = params.parallelism;
-    observe(SolveStage::Pattern);
     let start = Instant::now();
     let (dofs, flux) = number_unknowns(mesh, problem, params)?;
     let (pattern, dissection) = join.join(
@@ -282,7 +255,6 @@ pub fn solve_stokes_observed(
     let pattern = pattern?;
     timings.pattern = start.elapsed();
 
-    observe(SolveStage::Assembly);
     let ((system, assembly_time), (symbolic, symbolic_time)) = join.join(
         || timed(|| assemble_stokes(&pattern, mesh, problem, params.parallelism)),
         || timed(|| analyse_with(&pattern, linear.kind, dissection.as_ref())),
@@ -291,11 +263,9 @@ pub fn solve_stokes_observed(
     timings.assembly = assembly_time;
     timings.symbolic = symbolic_time;
 
-    observe(SolveStage::Factorisation);
     let start = Instant::now();
     let factor = symbolic.factorize(&pattern, &system.values, &linear)?;
     timings.numeric = start.elapsed();
-    observe(SolveStage::Substitution);
     let start = Instant::now();
     let (x, refinement) =
         symbolic.solve(&pattern, &system.values, &factor, &system.rhs, &linear)?;

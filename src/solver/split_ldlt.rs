@@ -60,6 +60,10 @@ pub struct Halves {
     pub second: usize,
 }
 
+/// Unknowns each half needs before a caller factorises the halves on two threads; smaller
+/// systems factorise in milliseconds either way.
+pub const SPLIT_MIN_HALF: usize = 500;
+
 /// Source index of the diagonal of a half's separator block (no entry of `A`).
 const UNIT: u32 = u32::MAX;
 
