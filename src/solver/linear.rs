@@ -34,7 +34,7 @@ use faer::sparse::linalg::lu::{
 };
 use faer::{Conj, MatMut, Par, Side};
 
-use crate::fem::assembly::{Parallelism, SystemPattern};
+use crate::fem::assembly::{CompactMatrix, Parallelism, SystemPattern};
 
 use super::SolveError;
 use super::split_ldlt::{
@@ -468,6 +468,46 @@ impl SymbolicSystem {
         rhs: &[f64],
         params: &LinearParams,
     ) -> Result<(Vec<f64>, RefinementInfo), SolveError> {
+        let residual = |x: &[f64], r: &mut [f64]| match self.kind {
+            SymbolicKind::Lu(_) => {
+                pattern.multiply(values, x, r);
+                r.iter_mut().zip(rhs).for_each(|(r, b)| *r = b - *r);
+                r.iter().map(|r| r * r).sum()
+            }
+            _ => pattern.symmetric_residual(values, x, rhs, r),
+        };
+        self.solve_refined(residual, factor, rhs, params)
+    }
+
+    /// [`SymbolicSystem::solve`] for a symmetric matrix given by its nonzero entries (a time
+    /// loop's step matrix, whose residual every step checks): the residual reads `matrix`
+    /// only, whichever factorisation this is.
+    ///
+    /// # Errors
+    /// As [`SymbolicSystem::solve`].
+    ///
+    /// # Panics
+    /// As [`SymbolicSystem::solve`].
+    pub fn solve_symmetric(
+        &self,
+        matrix: &CompactMatrix,
+        factor: &NumericFactor,
+        rhs: &[f64],
+        params: &LinearParams,
+    ) -> Result<(Vec<f64>, RefinementInfo), SolveError> {
+        let residual = |x: &[f64], r: &mut [f64]| matrix.symmetric_residual(x, rhs, r);
+        self.solve_refined(residual, factor, rhs, params)
+    }
+
+    /// The refinement loop of [`SymbolicSystem::solve`]: `residual(x, r)` writes `r = b − A x`
+    /// and returns `‖r‖₂²`.
+    fn solve_refined(
+        &self,
+        residual: impl Fn(&[f64], &mut [f64]) -> f64,
+        factor: &NumericFactor,
+        rhs: &[f64],
+        params: &LinearParams,
+    ) -> Result<(Vec<f64>, RefinementInfo), SolveError> {
         let norm_b = norm(rhs);
         if norm_b == 0.0 {
             return Ok((vec![0.0; rhs.len()], RefinementInfo { steps: 0, relative_residual: 0.0 }));
@@ -475,17 +515,10 @@ impl SymbolicSystem {
         // x₀ = A⁻¹ b straight from the factor; each refinement step adds A⁻¹ r.
         let mut x = rhs.to_vec();
         self.apply_inverse(factor, &mut x, params.parallelism);
-        let mut residual = vec![0.0; rhs.len()];
+        let mut r = vec![0.0; rhs.len()];
         let mut steps = 0;
         loop {
-            let squares = match self.kind {
-                SymbolicKind::Lu(_) => {
-                    pattern.multiply(values, &x, &mut residual);
-                    residual.iter_mut().zip(rhs).for_each(|(r, b)| *r = b - *r);
-                    residual.iter().map(|r| r * r).sum()
-                }
-                _ => pattern.symmetric_residual(values, &x, rhs, &mut residual),
-            };
+            let squares = residual(&x, &mut r);
             // A non-finite x makes the residual non-finite too (each unknown's column holds
             // its diagonal slot, and 0 · ∞ is NaN).
             let relative = squares.sqrt() / norm_b;
@@ -503,8 +536,8 @@ impl SymbolicSystem {
                 });
             }
             steps += 1;
-            self.apply_inverse(factor, &mut residual, params.parallelism);
-            x.iter_mut().zip(&residual).for_each(|(xi, di)| *xi += di);
+            self.apply_inverse(factor, &mut r, params.parallelism);
+            x.iter_mut().zip(&r).for_each(|(xi, di)| *xi += di);
         }
     }
 

@@ -39,7 +39,7 @@ use rayon::prelude::*;
 
 use crate::case::{BoundaryCondition, ScalarExpr};
 use crate::fem::assembly::{
-    AssembledSystem, LoadGather, SystemPattern, assemble_into, assemble_vector_into,
+    AssembledSystem, CompactMatrix, LoadGather, SystemPattern, assemble_into, assemble_vector_into,
 };
 use crate::fem::convection::{
     ExplicitCell, add_explicit_step_load, add_mass_block, explicit_step_loads,
@@ -163,6 +163,9 @@ pub struct ImexStepper<'a> {
     linear: LinearParams,
     factor: NumericFactor,
     matrix: AssembledSystem,
+    /// The nonzero entries of `matrix`, which every step's residual reads (built with each
+    /// factorisation).
+    residual_matrix: CompactMatrix,
     /// Order of the formula `matrix` and `factor` hold.
     factored_order: usize,
     /// The step matrices of the cells with eliminated values, for lifting those values.
@@ -171,6 +174,8 @@ pub struct ImexStepper<'a> {
     /// hold for every step, and resolving them again each step would cost 5–8 ms at 607k
     /// unknowns).
     boundary_depends_on_time: bool,
+    /// Largest prescribed speed of the boundary values in the pattern (updated with them).
+    boundary_speed: f64,
     cell_diameter: Vec<f64>,
     /// Weights of the pressure's mean, when the pressure is pinned (closed domains): built
     /// once, not at every step's [`expand_field_with`].
@@ -257,9 +262,7 @@ impl<'a> ImexStepper<'a> {
             viscous_form: problem.viscous_form,
             time: 0.0,
         };
-        let (mut pattern, _) = build_pattern(mesh, &stokes, &params.solver)?;
-        // Every step checks its residual.
-        pattern.keep_compact_row_indices();
+        let (pattern, _) = build_pattern(mesh, &stokes, &params.solver)?;
         let linear = params.solver.linear();
         // Every step solves with the step matrix's factor (measured: README, "Memory
         // bandwidth and the IMEX step").
@@ -280,6 +283,7 @@ impl<'a> ImexStepper<'a> {
         let cell_diameter = (0..mesh.n_cells()).map(|c| mesh.longest_edge(c)).collect();
         let lifting = LiftingCells::new(mesh, &pattern);
         let pattern_pins_pressure = pattern.dofs().pinned_pressure().is_some();
+        let boundary_speed = largest_fixed_speed(&pattern);
         let mut stepper = ImexStepper {
             mesh,
             problem,
@@ -289,9 +293,11 @@ impl<'a> ImexStepper<'a> {
             linear,
             factor,
             matrix,
+            residual_matrix: CompactMatrix::default(),
             factored_order: 0,
             lifting,
             boundary_depends_on_time: uses_time(problem.conditions),
+            boundary_speed,
             cell_diameter,
             pressure_mean: pattern_pins_pressure.then(|| PressureMean::new(mesh)),
             step: 0,
@@ -371,13 +377,13 @@ impl<'a> ImexStepper<'a> {
             if !self.pattern.update_fixed_values(&constraints.nodes) {
                 return Err(StepError::LayoutChanged { time });
             }
+            self.boundary_speed = largest_fixed_speed(&self.pattern);
         }
         self.assemble_rhs(order, time)?;
         self.timings.rhs += start.elapsed();
         let start = Instant::now();
-        let (x, refinement) = self.symbolic.solve(
-            &self.pattern,
-            &self.matrix.values,
+        let (x, refinement) = self.symbolic.solve_symmetric(
+            &self.residual_matrix,
             &self.factor,
             &self.rhs,
             &self.linear,
@@ -420,6 +426,7 @@ impl<'a> ImexStepper<'a> {
         }
         let values = &self.matrix.values;
         self.symbolic.refactorize(&self.pattern, values, &self.linear, &mut self.factor)?;
+        self.residual_matrix = CompactMatrix::of(&self.pattern, values);
         self.factored_order = order;
         Ok(())
     }
@@ -465,11 +472,11 @@ impl<'a> ImexStepper<'a> {
         let (a0, b1, b2) = bdf_coefficients(order, self.params.dt);
         let current = &self.current.velocity;
         let previous = self.previous.as_ref().map_or(current, |p| &p.velocity);
-        for (n, d) in self.derivative.iter_mut().enumerate() {
+        self.derivative.par_iter_mut().with_min_len(4096).enumerate().for_each(|(n, d)| {
             for c in 0..2 {
                 d[c] = a0 * next.velocity[n][c] - b1 * current[n][c] - b2 * previous[n][c];
             }
-        }
+        });
     }
 
     /// Courant number and largest nodal speed of `field` (infinite when a velocity is not
@@ -499,9 +506,7 @@ impl<'a> ImexStepper<'a> {
 
     /// Fails when the new state is not finite or faster than the blow-up limit.
     fn check_growth(&self, next: &FlowField, info: &StepInfo) -> Result<(), StepError> {
-        let boundary_speed =
-            self.pattern.dofs().fixed_velocities().map(|v| v[0].hypot(v[1])).fold(0.0, f64::max);
-        let limit = self.params.blow_up_factor * self.params.speed_scale.max(boundary_speed);
+        let limit = self.params.blow_up_factor * self.params.speed_scale.max(self.boundary_speed);
         let finite = info.max_speed.is_finite() && next.pressure.iter().all(|p| p.is_finite());
         if !finite || info.max_speed > limit {
             return Err(StepError::BlowUp {
@@ -514,6 +519,11 @@ impl<'a> ImexStepper<'a> {
         }
         Ok(())
     }
+}
+
+/// The largest speed among the velocities the pattern prescribes (0 without any).
+fn largest_fixed_speed(pattern: &SystemPattern) -> f64 {
+    pattern.dofs().fixed_velocities().map(|v| v[0].hypot(v[1])).fold(0.0, f64::max)
 }
 
 /// Whether a prescribed velocity among `conditions` uses `t`.
