@@ -226,7 +226,7 @@ const STIFFNESS_BATCH: usize = 4096;
 /// The stiffness matrix `(∇φ_i, ∇φ_j)` of the unknowns, both triangles, assembled straight
 /// into compressed columns: one column per unknown gathers the local matrices of the cells
 /// around its node, columns in parallel (no triplet list to sort: measured 0.95 s → see
-/// README, "Performance", at 453k nodes).
+/// docs/performance.md, at 453k nodes).
 fn stiffness(mesh: &Mesh, dof: &[Option<usize>], n_dofs: usize) -> SparseColMat<usize, f64> {
     let local: Vec<[[f64; 6]; 6]> = (0..mesh.n_cells())
         .into_par_iter()

@@ -58,7 +58,7 @@ pub enum SolverKind {
 ///
 /// [`FillOrdering::NestedDissection`] (default) orders by the mesh geometry
 /// ([`super::ordering`]): measured smaller factors and faster analysis than AMD on the
-/// default case (README, "Performance"). [`FillOrdering::Amd`] is faer's approximate minimum
+/// default case (docs/performance.md). [`FillOrdering::Amd`] is faer's approximate minimum
 /// degree on the matrix graph (no mesh needed).
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
 pub enum FillOrdering {
@@ -79,7 +79,7 @@ pub enum FillOrdering {
 ///   slow flows. Its iteration count grows with the Reynolds number of the whole domain:
 ///   76–80 iterations per Newton step on the DFG cylinder at Re = 20 (38k unknowns).
 ///
-/// Measurements: README, "Performance".
+/// Measurements: docs/performance.md.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
 pub enum NonsymmetricSolver {
     #[default]
@@ -550,7 +550,7 @@ impl SymbolicSystem {
         let n = rhs.len();
         match (&self.kind, &factor.kind) {
             (SymbolicKind::Ldlt(sym), NumericKind::Ldlt(l_values)) => {
-                // Two threads where the tree splits: measured faster than one (README,
+                // Two threads where the tree splits: measured faster than one (docs/performance.md,
                 // "Memory bandwidth and the IMEX step").
                 solve_ldlt_in_place(sym, l_values, self.sweep_split.as_ref(), rhs);
             }

@@ -229,7 +229,7 @@ pub enum SolveError {
 /// With [`SolverParams::parallelism`] = [`Parallelism::Rayon`] the pattern is built while
 /// the nested-dissection ordering is computed, and the system is assembled while the
 /// pattern is analysed; [`StageTimings::assembly`] and [`StageTimings::symbolic`] then
-/// overlap. Measured on the 1M-unknown default case: README, "Performance".
+/// overlap. Measured on the 1M-unknown default case: docs/performance.md.
 ///
 /// # Errors
 /// Any [`SolveError`]: invalid viscosity, empty mesh, missing or invalid boundary data,

@@ -26,7 +26,7 @@
 //! **Why.** faer's sparse numeric factorisation uses threads only inside its dense kernels,
 //! measured slower than one thread on two cores (`refs/stack-notes.md`); the two halves of a
 //! nested dissection are independent, so each takes a core. Measured on the 1M-unknown
-//! default case: README, "Performance".
+//! default case: docs/performance.md.
 //!
 //! **Invariant:** no I/O; the triangular solves are [`super::supernodal`]'s, both halves on
 //! their own thread, the separator on one.
@@ -119,7 +119,7 @@ pub struct SplitSymbolic {
 
 /// Which threads factorise the two halves.
 ///
-/// Measured on this machine (README, "Performance"): on rayon's workers the one-off steady
+/// Measured on this machine (docs/performance.md): on rayon's workers the one-off steady
 /// factorisation is fastest (1M unknowns: 3.3–3.4 s against 4.9–5.8 s on fresh threads,
 /// whose memory arenas start cold). A time loop's factor on threads of its own gave IMEX
 /// steps no slower and mostly faster (607k unknowns: 0.107 / 0.124 / 0.135 s against 0.139 /

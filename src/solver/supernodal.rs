@@ -20,7 +20,7 @@
 //! backward, so the factor streams through the prefetcher; `y_R` is gathered or scattered
 //! once per supernode. faer's own solve does the same algebra through its general dense
 //! kernels, whose per-call cost dominates on the many small supernodes of a finite-element
-//! factor (measured: README, "Memory bandwidth and the IMEX step").
+//! factor (measured: docs/performance.md, "Memory bandwidth and the IMEX step").
 //!
 //! **Two threads.** Below the chain of top separators the elimination tree splits into
 //! independent subtrees ([`SweepSplit`]). The forward sweep runs two groups of them at once,
@@ -105,7 +105,7 @@ pub fn packed_pointers(symbolic: &SymbolicSupernodalCholesky<usize>) -> Vec<usiz
 /// Rewrites faer's supernodal `values` (on `symbolic`) in place to the packed layout of
 /// `packed` (from [`packed_pointers`]): each column from its diagonal down, the columns of
 /// a supernode one after another, the unused upper triangles of the diagonal blocks dropped.
-/// The sweeps then read one unbroken stream (measured: README, "Memory bandwidth and the
+/// The sweeps then read one unbroken stream (measured: docs/performance.md, "Memory bandwidth and the
 /// IMEX step"). Every value moves to a lower index, so a forward pass of `copy_within` is
 /// safe; `values` is truncated to the packed length.
 ///

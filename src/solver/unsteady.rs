@@ -264,7 +264,7 @@ impl<'a> ImexStepper<'a> {
         };
         let (pattern, _) = build_pattern(mesh, &stokes, &params.solver)?;
         let linear = params.solver.linear();
-        // Every step solves with the step matrix's factor (measured: README, "Memory
+        // Every step solves with the step matrix's factor (measured: docs/performance.md, "Memory
         // bandwidth and the IMEX step").
         let symbolic =
             super::analyse_for_mesh(&pattern, mesh, linear.kind, params.solver.ordering)?

@@ -6,7 +6,7 @@
 //! code compiled for the baseline x86-64 target (all of ours, and the standard library's)
 //! carries a dependency on those upper halves, and the processor runs it far slower.
 //!
-//! Measured on this machine (README, "Performance"): the IMEX right-hand-side kernel took
+//! Measured on this machine (docs/performance.md): the IMEX right-hand-side kernel took
 //! 286–358 ns per cell on rayon's two workers after a faer matrix product had run there,
 //! against 93–125 ns once each worker had executed `vzeroupper`.
 //!
