@@ -658,13 +658,18 @@ mod tests {
     use crate::fem::dofs::NodeConstraint;
     use crate::mesh::structured::rectangle;
 
+    /// The fully coupled pattern of an `nx × ny` unit square with every node free.
+    fn free_pattern(nx: usize, ny: usize) -> SystemPattern {
+        let mesh = rectangle([0.0, 0.0], [1.0, 1.0], nx, ny, |_, _| [0.0, 0.0]).unwrap();
+        let constraints = vec![NodeConstraint::Free; mesh.nodes.len()];
+        let dofs = DofMap::new(&mesh, &constraints, None);
+        SystemPattern::new(&mesh, dofs, VelocityCoupling::Full).unwrap()
+    }
+
     #[test]
     fn symmetric_residual_is_b_minus_the_general_product_and_its_squared_norm() {
         // The row gather by symmetry against the column scatter of `multiply`.
-        let mesh = rectangle([0.0, 0.0], [1.0, 1.0], 40, 30, |_, _| [0.0, 0.0]).unwrap();
-        let constraints = vec![NodeConstraint::Free; mesh.nodes.len()];
-        let dofs = DofMap::new(&mesh, &constraints, None);
-        let pattern = SystemPattern::new(&mesh, dofs, VelocityCoupling::Full).unwrap();
+        let pattern = free_pattern(40, 30);
         let (cp, ri) = (pattern.col_ptr(), pattern.row_idx());
         let mut values = vec![0.0; pattern.nnz()];
         for col in 0..pattern.n() {
@@ -703,10 +708,7 @@ mod tests {
 
     #[test]
     fn compact_matrix_keeps_the_diagonal_so_a_non_finite_x_shows() {
-        let mesh = rectangle([0.0, 0.0], [1.0, 1.0], 6, 5, |_, _| [0.0, 0.0]).unwrap();
-        let constraints = vec![NodeConstraint::Free; mesh.nodes.len()];
-        let dofs = DofMap::new(&mesh, &constraints, None);
-        let pattern = SystemPattern::new(&mesh, dofs, VelocityCoupling::Full).unwrap();
+        let pattern = free_pattern(6, 5);
         let zeros = vec![0.0; pattern.nnz()];
         let compact = CompactMatrix::of(&pattern, &zeros);
         assert_eq!(compact.nnz(), pattern.n(), "only the diagonal slots");
