@@ -25,14 +25,25 @@ Peers (each skipped with a note when its package is missing):
   symmetric indefinite, upper triangle) through ``pypardiso``: the phases 11 (analysis), 22
   (factorisation) and 33 (solve, with PARDISO's default iterative refinement) are timed
   separately.
-* ``mumps-unsym`` and ``mumps-sym``: tried through the ``mumps`` module of the
-  ``python-mumps`` bindings, if importable (they need a MUMPS library from the system).
+* ``mumps-unsym`` (``sym = 0``) and ``mumps-sym`` (``sym = 2``, general symmetric, upper
+  triangle) through the ``mumps`` module of the ``python-mumps`` bindings, with MUMPS's
+  automatic choice of ordering; analysis, factorisation and solve timed separately.
 
 Install (the script itself installs nothing)::
 
     python3 -m pip install scipy pypardiso
 
-Licences (from the installed packages' metadata, 2026-12-03): scipy 1.17.1 is BSD-3-Clause
+MUMPS: the only ``python-mumps`` release with a binary wheel for CPython 3.11 here is 0.0.2
+(MUMPS 5.2.1, sequential, with METIS, SCOTCH and OpenBLAS inside the wheel), built against
+NumPy 1, so it goes into a virtual environment of its own with the other peers (measured
+2026-12-04; newer releases have no wheel and need a MUMPS library from the system)::
+
+    python3 -m venv /tmp/peers-venv
+    /tmp/peers-venv/bin/pip install "numpy<2" "scipy<1.14" pypardiso python-mumps==0.0.2
+    PATH=/tmp/peers-venv/bin:$PATH benches/peers.sh 4 /tmp/peers4 --repeat 2 --threads 2
+
+python-mumps is BSD-2-Clause (its wheel's metadata); MUMPS itself is CeCILL-C, a free LGPL-like
+licence (from memory: the wheel does not state it); like the others, a benchmark-only peer. Licences (from the installed packages' metadata, 2026-12-03): scipy 1.17.1 is BSD-3-Clause
 (its wheel bundles OpenBLAS, BSD-3-Clause, and the GCC runtime libraries); pypardiso 0.4.7
 is BSD-3-Clause; pypardiso pulls in Intel's ``mkl`` 2026.2.1 and ``tbb`` wheels under the
 Intel Simplified Software License and ``intel-openmp`` under Intel's End User License
@@ -48,8 +59,9 @@ or ``benches/peers.sh``, which exports the system and runs this script in one go
 are printed as a Markdown table and written to ``DIR/peers.json``.
 
 Threads: ``--threads`` sets ``OMP_NUM_THREADS``, ``MKL_NUM_THREADS`` and
-``OPENBLAS_NUM_THREADS`` in each child (default 1, like cornerflow's sequential
-factorisation).
+``OPENBLAS_NUM_THREADS`` in each child (default 1). cornerflow factorises the two halves of
+its nested dissection on two threads when each has at least 500 unknowns, so compare with
+``--threads 2``.
 """
 
 import argparse
