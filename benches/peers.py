@@ -29,18 +29,16 @@ Peers (each skipped with a note when its package is missing):
   triangle) through the ``mumps`` module of the ``python-mumps`` bindings, with MUMPS's
   automatic choice of ordering; analysis, factorisation and solve timed separately.
 
-Install (the script itself installs nothing)::
+Install: ``benches/peers.sh`` installs the peers into a virtual environment on first use
+(this script itself installs nothing). By hand::
 
-    python3 -m pip install scipy pypardiso
+    python3 -m venv target/peers-venv
+    target/peers-venv/bin/pip install "numpy<2" "scipy<1.14" pypardiso python-mumps==0.0.2
 
-MUMPS: the only ``python-mumps`` release with a binary wheel for CPython 3.11 here is 0.0.2
-(MUMPS 5.2.1, sequential, with METIS, SCOTCH and OpenBLAS inside the wheel), built against
-NumPy 1, so it goes into a virtual environment of its own with the other peers (measured
-2026-12-04; newer releases have no wheel and need a MUMPS library from the system)::
-
-    python3 -m venv /tmp/peers-venv
-    /tmp/peers-venv/bin/pip install "numpy<2" "scipy<1.14" pypardiso python-mumps==0.0.2
-    PATH=/tmp/peers-venv/bin:$PATH benches/peers.sh 4 /tmp/peers4 --repeat 2 --threads 2
+The only ``python-mumps`` release with a binary wheel for CPython 3.11 here is 0.0.2 (MUMPS
+5.2.1, sequential, with METIS, SCOTCH and OpenBLAS inside the wheel), built against NumPy 1,
+hence the pins (measured 2026-12-04; newer releases have no wheel and need a MUMPS library
+from the system).
 
 python-mumps is BSD-2-Clause (its wheel's metadata); MUMPS itself is CeCILL-C, a free LGPL-like
 licence (from memory: the wheel does not state it); like the others, a benchmark-only peer. Licences (from the installed packages' metadata, 2026-12-03): scipy 1.17.1 is BSD-3-Clause

@@ -1,8 +1,14 @@
 #!/usr/bin/env bash
 # Times cornerflow and general-purpose sparse direct solvers on the identical matrix in one run:
-# builds the release binary, runs the default case (examples/profile-channel.toml) with every
-# mesh size divided by SCALE (unknowns grow about like SCALE²) and --export-system, then hands
-# the exported matrix to benches/peers.py (needs `python3 -m pip install scipy pypardiso`).
+# installs the peers from PyPI into a virtual environment on first use (SciPy's SuperLU,
+# PARDISO through pypardiso, MUMPS through the python-mumps 0.0.2 wheel, which needs NumPy 1;
+# a peer that does not install is skipped by peers.py), builds the release binary, runs the
+# default case (examples/profile-channel.toml) with every mesh size divided by SCALE (unknowns
+# grow about like SCALE²) and --export-system, then hands the exported matrix to
+# benches/peers.py in that environment.
+#
+# The environment lives in CORNERFLOW_PEERS_VENV (default target/peers-venv); delete it to
+# reinstall.
 #
 # Usage: benches/peers.sh [SCALE] [WORKDIR] [peers.py options...]
 #   SCALE    divides [mesh] size, part_sizes and grading h_min of the case (default 1)
@@ -36,5 +42,14 @@ for key in (r"(\nsize = )([0-9.eE+-]+)", r"(wing = )([0-9.eE+-]+)", r"(\nh_min =
 open(target, "w", encoding="utf-8").write(text)
 PY
 
+venv=${CORNERFLOW_PEERS_VENV:-$root/target/peers-venv}
+if [ ! -x "$venv/bin/python" ]; then
+  python3 -m venv "$venv"
+  "$venv/bin/pip" install --quiet "numpy<2" "scipy<1.14" pypardiso \
+    || echo "peers.sh: SciPy or pypardiso did not install; their rows will be skipped" >&2
+  "$venv/bin/pip" install --quiet "python-mumps==0.0.2" \
+    || echo "peers.sh: python-mumps did not install; the MUMPS rows will be skipped" >&2
+fi
+
 "$bin" run "$case_file" -o "$work/run" --force --export-system "$work/system"
-python3 "$root/benches/peers.py" "$work/system" "$@"
+"$venv/bin/python" "$root/benches/peers.py" "$work/system" "$@"
