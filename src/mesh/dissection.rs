@@ -24,7 +24,7 @@ pub const LEAF_CELLS: usize = 2;
 /// Deepest split (2⁶⁰ leaves, far beyond any mesh).
 const MAX_DEPTH: u32 = 60;
 
-/// Sort key of a tree node in post-order (see [`TreeNode::post_order_key`]).
+/// Sort key of a tree node in post-order: descendants first, the left subtree before the right.
 pub type DissectionKey = (u64, std::cmp::Reverse<u32>);
 
 /// A tree node: the split decisions from the root, left-aligned (`0` left, `1` right), and

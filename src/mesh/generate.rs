@@ -15,7 +15,7 @@
 //!    points computed outside spade are a rounding step off their line, and the slivers they
 //!    leave outside the domain stop spade from splitting segments later);
 //! 5. insert a point into every triangle whose three vertices lie on the boundary (a
-//!    Taylor–Hood element needs an interior vertex), see [`repair_boundary_triangles`];
+//!    Taylor–Hood element needs an interior vertex), see `repair_boundary_triangles`;
 //! 6. recover the part of every boundary edge by walking the chain of split constraint edges
 //!    from each input segment's start to its end (split edges carry no data in spade);
 //! 7. renumber vertices along a Morton (Z-order) curve for locality and lift to P2.

@@ -46,10 +46,10 @@ pub struct MeshStats {
     /// Number of boundary edges per part id.
     pub edges_per_part: Vec<usize>,
     /// Triangles whose three vertices lie on the boundary (0 for meshes from
-    /// [`generate`](super::generate)).
+    /// [`generate`](fn@super::generate)).
     pub n_boundary_triangles: usize,
     /// The triangle count estimated before meshing, when the mesh came from
-    /// [`generate`](super::generate).
+    /// [`generate`](fn@super::generate).
     pub estimated_triangles: Option<f64>,
 }
 

@@ -3,7 +3,7 @@
 //! three-node quadratic edges (VTK cell type 21) carrying their part id.
 //!
 //! Data are written as inline base64 binary, uncompressed by default (fast and read by every
-//! VTK reader; streamed straight to the file by [`super::vtu_stream`]) or zlib-compressed on
+//! VTK reader; streamed straight to the file by `vtu_stream`) or zlib-compressed on
 //! request through vtkio's model; see `stack-notes.md` §4 for why only zlib.
 
 use std::path::Path;

@@ -457,7 +457,7 @@ pub fn assemble_stokes_into(
 }
 
 /// Builds the flow field from the solution vector; when the pressure was pinned, shifts it
-/// to zero mean `∫ p = 0` ([`PressureMean`]).
+/// to zero mean `∫ p = 0` (`PressureMean`).
 pub fn expand_field(mesh: &Mesh, dofs: &DofMap, x: &[f64]) -> FlowField {
     let mean = dofs.pinned_pressure().map(|_| PressureMean::new(mesh));
     expand_field_with(dofs, x, mean.as_ref())
