@@ -79,6 +79,16 @@ pub fn top_half(key: &DissectionKey) -> Option<u64> {
     (key.1.0 > 0).then_some(key.0 >> 63)
 }
 
+/// The items of `entries` in increasing order of `(key, item)` — the dissection order — and
+/// how many of them lie in the first and in the second half of the top split
+/// ([`top_half`]); the top separator's items come last.
+pub fn in_dissection_order<T: Ord>(mut entries: Vec<(DissectionKey, T)>) -> (Vec<T>, [usize; 2]) {
+    entries.sort_unstable();
+    let count = |side| entries.iter().filter(|(key, _)| top_half(key) == Some(side)).count();
+    let halves = [count(0), count(1)];
+    (entries.into_iter().map(|(_, item)| item).collect(), halves)
+}
+
 /// A cell's centroid and bounding box: what the bisection reads, kept in one array that is
 /// reordered with the cells so that every pass over a subtree reads contiguous memory; and
 /// the leaf the bisection puts the cell in.

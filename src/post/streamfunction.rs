@@ -31,7 +31,7 @@ use crate::fem::FlowField;
 use crate::fem::quadrature::triangle_rule;
 use crate::fem::shape::{p2_gradients, p2_values};
 use crate::mesh::Mesh;
-use crate::mesh::dissection::{node_keys, top_half};
+use crate::mesh::dissection::{in_dissection_order, node_keys};
 use crate::solver::split_ldlt::{Halves, SPLIT_MIN_HALF, SplitFactor, SplitSymbolic};
 use crate::solver::supernodal::{SweepSplit, solve_ldlt_in_place, sweep_split};
 use crate::solver::vector_registers::reset_after_faer;
@@ -142,12 +142,10 @@ impl StreamFunctionSolver {
 /// `k`-th; the pinned node left out) with the number of them in each half of the top split,
 /// which `perm` numbers first, before the top separator.
 fn dissection_order(mesh: &Mesh, dof: &[Option<usize>]) -> (Vec<usize>, Halves) {
-    let mut keyed: Vec<_> =
+    let keyed =
         node_keys(mesh).into_iter().zip(dof).filter_map(|(key, d)| Some((key?, (*d)?))).collect();
-    keyed.sort_unstable();
-    let count = |side| keyed.iter().filter(|(key, _)| top_half(key) == Some(side)).count();
-    let halves = Halves { first: count(0), second: count(1) };
-    (keyed.into_iter().map(|(_, d)| d).collect(), halves)
+    let (perm, [first, second]) = in_dissection_order(keyed);
+    (perm, Halves { first, second })
 }
 
 /// The sparse `LDLᵀ` factorisation of the symmetric positive definite `A` (both triangles

@@ -29,8 +29,8 @@ use crate::mesh::dissection::{self, DissectionKey};
 /// nodes in both halves, so no matrix entry couples them ([`super::split_ldlt`]).
 pub fn nested_dissection_halves(mesh: &Mesh, dofs: &DofMap) -> (Vec<usize>, Halves) {
     let keys = dissection::node_keys(mesh);
-    // (key, class, node, unknown): class 0 velocity, 1 pressure.
-    let mut entries: Vec<(DissectionKey, u8, usize, usize)> = Vec::with_capacity(dofs.n_dofs());
+    // (key, (class, node, unknown)): class 0 velocity, 1 pressure.
+    let mut entries: Vec<(DissectionKey, (u8, usize, usize))> = Vec::with_capacity(dofs.n_dofs());
     for (node, key) in keys.into_iter().enumerate() {
         let Some(key) = key else { continue };
         let [a, b] = dofs.velocity(node);
@@ -40,22 +40,18 @@ pub fn nested_dissection_halves(mesh: &Mesh, dofs: &DofMap) -> (Vec<usize>, Halv
             if let ComponentDof::Free { dof, .. } = c
                 && last != Some(dof)
             {
-                entries.push((key, 0, node, dof));
+                entries.push((key, (0, node, dof)));
                 last = Some(dof);
             }
         }
         if node < mesh.n_vertices
             && let ComponentDof::Free { dof, .. } = dofs.pressure(node)
         {
-            entries.push((key, 1, node, dof));
+            entries.push((key, (1, node, dof)));
         }
     }
-    entries.sort_unstable();
-    // Below the root (depth ≥ 1) the first split decision is the path's top bit.
-    let half_of = |key: &DissectionKey| (key.1.0 > 0).then_some(key.0 >> 63);
-    let count = |side| entries.iter().filter(|e| half_of(&e.0) == Some(side)).count();
-    let halves = Halves { first: count(0), second: count(1) };
-    (entries.into_iter().map(|e| e.3).collect(), halves)
+    let (ordered, [first, second]) = dissection::in_dissection_order(entries);
+    (ordered.into_iter().map(|(_, _, dof)| dof).collect(), Halves { first, second })
 }
 
 #[cfg(test)]
