@@ -95,8 +95,9 @@ impl StreamFunctionSolver {
             })
             .collect();
         let n_dofs = mesh.nodes.len() - 1;
-        let matrix = stiffness(mesh, &dof, n_dofs);
-        let (perm, halves) = dissection_order(mesh, &dof);
+        // The ordering is mostly one sort: it runs beside the parallel assembly.
+        let (matrix, (perm, halves)) =
+            rayon::join(|| stiffness(mesh, &dof, n_dofs), || dissection_order(mesh, &dof));
         if perm.len() != n_dofs {
             return Err(PostError::StreamFunction { reason: "a node lies in no cell".into() });
         }

@@ -252,7 +252,7 @@ pub fn solve_stokes(
         || full_pattern(mesh, dofs.clone()),
         || fill_permutation(mesh, &dofs, linear.kind, params.ordering),
     );
-    let pattern = pattern?;
+    let mut pattern = pattern?;
     timings.pattern = start.elapsed();
 
     let ((system, assembly_time), (symbolic, symbolic_time)) = join.join(
@@ -262,6 +262,8 @@ pub fn solve_stokes(
     let (system, symbolic) = (system?, symbolic?);
     timings.assembly = assembly_time;
     timings.symbolic = symbolic_time;
+    // One assembly only: its pages go back before the factor's are touched.
+    pattern.release_positions();
 
     let start = Instant::now();
     let factor = symbolic.factorize(&pattern, &system.values, &linear)?;
