@@ -262,8 +262,10 @@ pub fn solve_stokes(
     let (system, symbolic) = (system?, symbolic?);
     timings.assembly = assembly_time;
     timings.symbolic = symbolic_time;
-    // One assembly only: its pages go back before the factor's are touched.
+    // One assembly only: its pages go back before the factor's are touched, as do those of
+    // the numbering's copy and the ordering (the pattern and the analysis keep their own).
     pattern.release_positions();
+    drop((dofs, dissection));
 
     let start = Instant::now();
     let factor = symbolic.factorize(&pattern, &system.values, &linear)?;
