@@ -693,6 +693,23 @@ mod tests {
         SystemPattern::new(&mesh, dofs, VelocityCoupling::Full).unwrap()
     }
 
+    /// An `nx × ny` mesh of `[0, 2] × [0, 1]` with the velocity `fixed` on the left side and
+    /// slip nodes (weights other than 1) on the bottom, and its fully coupled pattern.
+    fn fixed_and_slip_pattern(nx: usize, ny: usize, fixed: [f64; 2]) -> (Mesh, SystemPattern) {
+        let mesh = rectangle([0.0, 0.0], [2.0, 1.0], nx, ny, |_, _| [0.0, 0.0]).unwrap();
+        let mut constraints = vec![NodeConstraint::Free; mesh.nodes.len()];
+        for (n, p) in mesh.nodes.iter().enumerate() {
+            if p[0] == 0.0 {
+                constraints[n] = NodeConstraint::Fixed(fixed);
+            } else if p[1] == 0.0 {
+                constraints[n] = NodeConstraint::Slip { tangent: [0.6, 0.8] };
+            }
+        }
+        let dofs = DofMap::new(&mesh, &constraints, None);
+        let pattern = SystemPattern::new(&mesh, dofs, VelocityCoupling::Full).unwrap();
+        (mesh, pattern)
+    }
+
     #[test]
     fn symmetric_residual_is_b_minus_the_general_product_and_its_squared_norm() {
         // The row gather by symmetry against the column scatter of `multiply`.
@@ -750,17 +767,7 @@ mod tests {
     fn gathered_load_equals_the_serial_scatter_bit_for_bit() {
         // Fixed and slip nodes (weights other than 1) on the boundary; the reference is the
         // plain element-order scatter `rhs[dof] += weight · load[i]`.
-        let mesh = rectangle([0.0, 0.0], [2.0, 1.0], 30, 14, |_, _| [0.0, 0.0]).unwrap();
-        let mut constraints = vec![NodeConstraint::Free; mesh.nodes.len()];
-        for (n, p) in mesh.nodes.iter().enumerate() {
-            if p[0] == 0.0 {
-                constraints[n] = NodeConstraint::Fixed([1.0, 0.0]);
-            } else if p[1] == 0.0 {
-                constraints[n] = NodeConstraint::Slip { tangent: [0.6, 0.8] };
-            }
-        }
-        let dofs = DofMap::new(&mesh, &constraints, None);
-        let pattern = SystemPattern::new(&mesh, dofs, VelocityCoupling::Full).unwrap();
+        let (mesh, pattern) = fixed_and_slip_pattern(30, 14, [1.0, 0.0]);
         let local = |cell: usize, load: &mut [f64; LOCAL_SIZE]| {
             for (i, l) in load.iter_mut().enumerate() {
                 *l = ((cell * 17 + i * 5) % 23) as f64 / 7.0 - 1.3;
@@ -792,17 +799,7 @@ mod tests {
     /// that fills the pressure–pressure block (dropped entries counted alike).
     #[test]
     fn assembly_after_releasing_the_positions_is_unchanged() {
-        let mesh = rectangle([0.0, 0.0], [2.0, 1.0], 12, 7, |_, _| [0.0, 0.0]).unwrap();
-        let mut constraints = vec![NodeConstraint::Free; mesh.nodes.len()];
-        for (n, p) in mesh.nodes.iter().enumerate() {
-            if p[0] == 0.0 {
-                constraints[n] = NodeConstraint::Fixed([1.0, 0.5]);
-            } else if p[1] == 0.0 {
-                constraints[n] = NodeConstraint::Slip { tangent: [0.6, 0.8] };
-            }
-        }
-        let dofs = DofMap::new(&mesh, &constraints, None);
-        let mut pattern = SystemPattern::new(&mesh, dofs, VelocityCoupling::Full).unwrap();
+        let (mesh, mut pattern) = fixed_and_slip_pattern(12, 7, [1.0, 0.5]);
         let kernel = |cell: usize, local: &mut LocalSystem| {
             for (i, row) in local.matrix.iter_mut().enumerate() {
                 for (j, k) in row.iter_mut().enumerate() {
