@@ -32,9 +32,11 @@ pub fn run(args: &MeshArgs) -> anyhow::Result<()> {
 /// 3.7 GB at 228,156 triangles of the default case (1.02M unknowns; 3.61–3.71 GB over four
 /// runs of commit `785d82e`, when the stream function was factorised alongside the flow),
 /// `e = 1.05` (the growth of peak memory measured by `benches/scaling.sh` above 250k
-/// unknowns). The same case now peaks at 2.75–2.83 GB (commit `6c0a09c`: the stream function
-/// after the flow, the position map freed before the factorisation); the law is kept, so
-/// the refusal errs on the side of caution (about 30 % at 1M unknowns).
+/// unknowns). The same case now peaks at 2.29–2.34 GB (the stream function after the flow;
+/// the position map, the pattern and the assembled values freed before the factorisation,
+/// 2026-12-04); the law is kept for the time-dependent runs that share it, which hold their
+/// step matrix throughout, so a steady refusal errs on the side of caution (about 60 % at
+/// 1M unknowns).
 const MEMORY_LAW_LU: (f64, f64, f64) = (1.47e9, 39_339.0, 1.25);
 const MEMORY_LAW_LDLT: (f64, f64, f64) = (3.7e9, 228_156.0, 1.05);
 

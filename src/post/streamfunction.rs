@@ -165,7 +165,7 @@ fn factorize(
         let analysed = SplitSymbolic::analyse(matrix.symbolic(), perm, &inverse, halves, &signs);
         if let Some(symbolic) = analysed.map_err(|e| debug(&e))? {
             let mut values = SplitFactor::default();
-            symbolic.factorize(matrix.val(), None, Par::Seq, &mut values)?;
+            symbolic.factorize(&symbolic.gather(matrix.val()), None, Par::Seq, &mut values)?;
             return Ok(Factor::Split { symbolic: Box::new(symbolic), values });
         }
     }

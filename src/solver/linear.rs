@@ -39,7 +39,7 @@ use crate::fem::assembly::{CompactMatrix, Parallelism, SystemPattern};
 use super::SolveError;
 use super::split_ldlt::{
     HalfThreads, Halves, PivotRegularization, SPLIT_MIN_HALF, SplitFactor, SplitSymbolic,
-    faer_regularization,
+    SplitValues, faer_regularization,
 };
 use super::supernodal::{SweepSplit, packed_pointers, solve_ldlt_in_place, sweep_split};
 use super::vector_registers::reset_after_faer;
@@ -172,6 +172,16 @@ impl NumericFactor {
     pub fn placeholder() -> Self {
         NumericFactor { kind: NumericKind::Ldlt(Vec::new()) }
     }
+}
+
+/// A symmetric system's matrix laid out for its split `LDLᵀ`, with the pivot regularisation
+/// it is factorised with ([`SymbolicSystem::gather`]): enough to factorise and to refine, so
+/// that a one-shot solve frees the assembled values and the pattern once it has this, before
+/// the factor's pages are touched (docs/performance.md).
+#[derive(Debug)]
+pub struct GatheredMatrix {
+    values: SplitValues,
+    pivots: PivotRegularization,
 }
 
 #[derive(Debug)]
@@ -407,17 +417,17 @@ impl SymbolicSystem {
     ) -> Result<(), SolveError> {
         let scale = pressure_scale(pattern, values);
         let (values, pivots) = match regularization {
-            Regularization::Dynamic { delta, epsilon } => (
-                Cow::Borrowed(values),
-                Some(PivotRegularization { delta: delta * scale, epsilon: epsilon * scale }),
-            ),
+            Regularization::Dynamic { delta, epsilon } => {
+                (Cow::Borrowed(values), Some(scaled_pivots(delta, epsilon, scale)))
+            }
             Regularization::Static { delta } => {
                 (Cow::Owned(shift_pressure_diagonal(pattern, values, -delta * scale)), None)
             }
         };
         match target {
             LdltTarget::Split(split, factor) => {
-                split.factorize(&values, pivots, par, factor).map_err(numeric_failure)
+                let gathered = split.gather(&values);
+                split.factorize(&gathered, pivots, par, factor).map_err(numeric_failure)
             }
             LdltTarget::Whole(sym, l_values) => {
                 let regularization = faer_regularization(pivots, &self.signs);
@@ -436,6 +446,79 @@ impl SymbolicSystem {
                 .map(|_| ())
                 .map_err(|e| numeric_failure(format!("{e:?}")))
             }
+        }
+    }
+
+    /// `values` on `pattern` laid out for a split `LDLᵀ` with dynamic regularisation, the
+    /// default for a large Stokes system ([`GatheredMatrix`]); `None` for other
+    /// factorisations and for static regularisation, which keep to
+    /// [`SymbolicSystem::factorize`] and [`SymbolicSystem::solve`].
+    pub fn gather(
+        &self,
+        pattern: &SystemPattern,
+        values: &[f64],
+        params: &LinearParams,
+    ) -> Option<GatheredMatrix> {
+        let SymbolicKind::SplitLdlt(split) = &self.kind else { return None };
+        let Regularization::Dynamic { delta, epsilon } = params.regularization else {
+            return None;
+        };
+        let scale = pressure_scale(pattern, values);
+        Some(GatheredMatrix {
+            values: split.gather(values),
+            pivots: scaled_pivots(delta, epsilon, scale),
+        })
+    }
+
+    /// [`SymbolicSystem::factorize`] of a [`GatheredMatrix`].
+    ///
+    /// # Errors
+    /// As [`SymbolicSystem::factorize`].
+    ///
+    /// # Panics
+    /// When `matrix` was not gathered by this symbolic system (a programming error).
+    pub fn factorize_gathered(
+        &self,
+        matrix: &GatheredMatrix,
+        params: &LinearParams,
+    ) -> Result<NumericFactor, SolveError> {
+        let split = self.gathering_split();
+        let mut factor = SplitFactor::default();
+        let par = faer_par(params.parallelism);
+        let result = split.factorize(&matrix.values, Some(matrix.pivots), par, &mut factor);
+        reset_after_faer();
+        result.map_err(numeric_failure)?;
+        if self.pack {
+            split.pack(&mut factor);
+        }
+        Ok(NumericFactor { kind: NumericKind::SplitLdlt(factor) })
+    }
+
+    /// [`SymbolicSystem::solve`] of a [`GatheredMatrix`]: the residual reads the gathered
+    /// values only.
+    ///
+    /// # Errors
+    /// As [`SymbolicSystem::solve`].
+    ///
+    /// # Panics
+    /// When `matrix` or `factor` do not belong to this symbolic system (a programming error).
+    pub fn solve_gathered(
+        &self,
+        matrix: &GatheredMatrix,
+        factor: &NumericFactor,
+        rhs: &[f64],
+        params: &LinearParams,
+    ) -> Result<(Vec<f64>, RefinementInfo), SolveError> {
+        let split = self.gathering_split();
+        let residual = |x: &[f64], r: &mut [f64]| split.residual(&matrix.values, x, rhs, r);
+        self.solve_refined(residual, factor, rhs, params)
+    }
+
+    /// The split analysis a [`GatheredMatrix`] belongs to.
+    fn gathering_split(&self) -> &SplitSymbolic {
+        match &self.kind {
+            SymbolicKind::SplitLdlt(split) => split,
+            _ => unreachable!("a gathered matrix is only produced by a split analysis"),
         }
     }
 
@@ -594,6 +677,12 @@ fn pressure_scale(pattern: &SystemPattern, values: &[f64]) -> f64 {
         .map(|k| values[k].abs())
         .fold(0.0, f64::max);
     if a_max > 0.0 && b_max > 0.0 { b_max * b_max / a_max } else { 1.0 }
+}
+
+/// Dynamic regularisation of the pivots for a system whose pressure pivots have the size
+/// `scale` ([`pressure_scale`]).
+fn scaled_pivots(delta: f64, epsilon: f64, scale: f64) -> PivotRegularization {
+    PivotRegularization { delta: delta * scale, epsilon: epsilon * scale }
 }
 
 fn shift_pressure_diagonal(pattern: &SystemPattern, values: &[f64], shift: f64) -> Vec<f64> {

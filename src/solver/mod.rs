@@ -50,8 +50,8 @@ use split_ldlt::Halves;
 
 pub use boundary::{BoundaryConstraints, BoundaryFlux, boundary_flux, resolve_boundary};
 pub use linear::{
-    FillOrdering, LinearParams, NonsymmetricSolver, NumericFactor, RefinementInfo, Regularization,
-    SolverKind, SymbolicSystem,
+    FillOrdering, GatheredMatrix, LinearParams, NonsymmetricSolver, NumericFactor, RefinementInfo,
+    Regularization, SolverKind, SymbolicSystem,
 };
 pub use navier_stokes::{
     NewtonError, NewtonInfo, NewtonIteration, NewtonParams, solve_steady_navier_stokes,
@@ -263,31 +263,56 @@ pub fn solve_stokes(
     timings.assembly = assembly_time;
     timings.symbolic = symbolic_time;
     // One assembly only: its pages go back before the factor's are touched, as do those of
-    // the numbering's copy and the ordering (the pattern and the analysis keep their own).
+    // the ordering (the analysis keeps its own).
     pattern.release_positions();
-    drop((dofs, dissection));
+    drop(dissection);
+    let nnz = pattern.nnz();
 
-    let start = Instant::now();
-    let factor = symbolic.factorize(&pattern, &system.values, &linear)?;
-    timings.numeric = start.elapsed();
-    let start = Instant::now();
-    let (x, refinement) =
-        symbolic.solve(&pattern, &system.values, &factor, &system.rhs, &linear)?;
-    timings.solve = start.elapsed();
-
-    let field = expand_field(mesh, pattern.dofs(), &x);
+    let (x, refinement) = factorize_and_solve(&symbolic, pattern, system, &linear, &mut timings)?;
+    let field = expand_field(mesh, &dofs, &x);
     let info = SolveInfo {
-        n_velocity_dofs: pattern.dofs().n_velocity_dofs(),
-        n_pressure_dofs: pattern.dofs().n_pressure_dofs(),
-        nnz: pattern.nnz(),
+        n_velocity_dofs: dofs.n_velocity_dofs(),
+        n_pressure_dofs: dofs.n_pressure_dofs(),
+        nnz,
         factor_entries: symbolic.factor_entries(),
         timings,
         refinement_steps: refinement.steps,
         relative_residual: refinement.relative_residual,
-        pressure_fixed: pattern.dofs().pinned_pressure().is_some(),
+        pressure_fixed: dofs.pinned_pressure().is_some(),
         boundary_flux: flux,
     };
     Ok((field, info))
+}
+
+/// The numeric factorisation and the refined solve of a one-shot steady system, timed into
+/// `timings`. When the analysis lays the matrix out for its split `LDLᵀ`
+/// ([`SymbolicSystem::gather`]), the pattern and the assembled values (about 16 bytes per
+/// stored entry: 470 MB at 1M unknowns) are freed before the factor's pages are touched; on
+/// a virtual machine the last of a process's fresh pages cost five times the first
+/// (docs/performance.md).
+fn factorize_and_solve(
+    symbolic: &SymbolicSystem,
+    pattern: SystemPattern,
+    system: AssembledSystem,
+    linear: &LinearParams,
+    timings: &mut StageTimings,
+) -> Result<(Vec<f64>, RefinementInfo), SolveError> {
+    let start = Instant::now();
+    let Some(matrix) = symbolic.gather(&pattern, &system.values, linear) else {
+        let factor = symbolic.factorize(&pattern, &system.values, linear)?;
+        timings.numeric = start.elapsed();
+        let start = Instant::now();
+        let solution = symbolic.solve(&pattern, &system.values, &factor, &system.rhs, linear)?;
+        timings.solve = start.elapsed();
+        return Ok(solution);
+    };
+    drop((pattern, system.values));
+    let factor = symbolic.factorize_gathered(&matrix, linear)?;
+    timings.numeric = start.elapsed();
+    let start = Instant::now();
+    let solution = symbolic.solve_gathered(&matrix, &factor, &system.rhs, linear)?;
+    timings.solve = start.elapsed();
+    Ok(solution)
 }
 
 /// The symbolic analysis of `pattern` for `kind`, with the `LDLᵀ` ordered by `ordering`

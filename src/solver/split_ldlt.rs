@@ -135,6 +135,18 @@ pub enum HalfThreads {
     Own,
 }
 
+/// `A`'s values laid out for a [`SplitSymbolic`] ([`SplitSymbolic::gather`]): each half's
+/// `M_h` in the order of its lower pattern (the stand-in `c` on its separator block) and the
+/// entries of `Aₜₜ`'s lower triangle. Together they hold every entry of `A`'s lower triangle
+/// once, so the factorisation and the residual of a solve need neither `A`'s values nor its
+/// pattern: a one-shot solve frees both before the factor's pages are touched.
+#[derive(Debug, Default)]
+pub struct SplitValues {
+    halves: [Vec<f64>; 2],
+    /// In the order of [`SplitSymbolic::top_entries`].
+    top: Vec<f64>,
+}
+
 /// A numeric factorisation on a [`SplitSymbolic`].
 #[derive(Debug, Default)]
 pub struct SplitFactor {
@@ -206,23 +218,36 @@ impl SplitSymbolic {
             + self.n_top * (self.n_top + 1) / 2
     }
 
-    /// Factorises the matrix with `values` (on the analysed pattern) into `factor`, reusing
-    /// its storage: the halves on two threads, then the separator with `par`.
+    /// `A`'s `values` (on the analysed pattern) laid out for the halves and the separator;
+    /// the halves on two threads.
+    ///
+    /// # Panics
+    /// When `values` belongs to a smaller pattern (a programming error).
+    pub fn gather(&self, values: &[f64]) -> SplitValues {
+        let [first, second] = &self.halves;
+        let (first, second) = rayon::join(|| first.gather(values), || second.gather(values));
+        let top = self.top_entries.iter().map(|&(_, source)| values[source]).collect();
+        SplitValues { halves: [first, second], top }
+    }
+
+    /// Factorises the matrix with `values` ([`SplitSymbolic::gather`]) into `factor`,
+    /// reusing its storage: the halves on two threads, then the separator with `par`.
     ///
     /// # Errors
     /// faer's, when a factorisation fails (not expected with regularisation).
     pub fn factorize(
         &self,
-        values: &[f64],
+        values: &SplitValues,
         regularization: Option<PivotRegularization>,
         par: Par,
         factor: &mut SplitFactor,
     ) -> Result<(), String> {
         factor.packed = false;
         let [first, second] = &mut factor.halves;
+        let [m_first, m_second] = &values.halves;
         let halves = &self.halves;
-        let first = || halves[0].factorize(values, regularization, self.n_top, first);
-        let second = || halves[1].factorize(values, regularization, self.n_top, second);
+        let first = || halves[0].factorize(m_first, regularization, self.n_top, first);
+        let second = || halves[1].factorize(m_second, regularization, self.n_top, second);
         let (update_first, update_second) = match self.threads {
             HalfThreads::Pool => rayon::join(first, second),
             HalfThreads::Own => std::thread::scope(|scope| {
@@ -235,8 +260,8 @@ impl SplitSymbolic {
         let top = &mut factor.top;
         top.clear();
         top.resize(self.n_top * self.n_top, 0.0);
-        for &(position, source) in &self.top_entries {
-            top[position] += values[source];
+        for (&(position, _), value) in self.top_entries.iter().zip(&values.top) {
+            top[position] += value;
         }
         for (s, (u1, u2)) in top.iter_mut().zip(update_first.iter().zip(&update_second)) {
             *s -= u1 + u2;
@@ -300,6 +325,47 @@ impl SplitSymbolic {
         for (k, &p) in self.perm.iter().enumerate() {
             rhs[p] = y[k];
         }
+    }
+}
+
+impl SplitSymbolic {
+    /// `r = b − A x` and `‖r‖₂²` for the matrix with `values` ([`SplitSymbolic::gather`]):
+    /// each half's lower triangle on its own thread in the permuted numbering (its own rows
+    /// are its alone; its separator rows go to a vector of its own, summed afterwards), then
+    /// `Aₜₜ`. Deterministic: the summation order does not depend on the threads.
+    ///
+    /// # Panics
+    /// When `x`, `b` or `r` belong to another system (a programming error).
+    pub fn residual(&self, values: &SplitValues, x: &[f64], b: &[f64], r: &mut [f64]) -> f64 {
+        let n = self.n();
+        assert!(x.len() == n && b.len() == n && r.len() == n, "vectors of another size");
+        let y: Vec<f64> = self.perm.iter().map(|&p| x[p]).collect();
+        let [first, second] = &self.halves;
+        let top_start = n - self.n_top;
+        let mut product = vec![0.0; n];
+        let (own_first, rest) = product.split_at_mut(first.own);
+        let (own_second, top) = rest.split_at_mut(second.own);
+        let (top_first, top_second) = rayon::join(
+            || first.add_product(&values.halves[0], &y, top_start, own_first),
+            || second.add_product(&values.halves[1], &y, top_start, own_second),
+        );
+        let y_top = &y[top_start..];
+        for (t, (a, b)) in top.iter_mut().zip(top_first.iter().zip(&top_second)) {
+            *t = a + b;
+        }
+        for (&(position, _), &value) in self.top_entries.iter().zip(&values.top) {
+            let (col, row) = (position / self.n_top, position % self.n_top);
+            top[row] += value * y_top[col];
+            if row != col {
+                top[col] += value * y_top[row];
+            }
+        }
+        let mut squares = 0.0;
+        for (k, &p) in self.perm.iter().enumerate() {
+            r[p] = b[p] - product[k];
+            squares += r[p] * r[p];
+        }
+        squares
     }
 }
 
@@ -411,21 +477,58 @@ impl Half {
         self.own_blocks().map(|(height, own)| packed_offset(own, height)).sum()
     }
 
-    /// Factorises `M_h` with `A`'s `values` into `l_values`; returns `Lₜₕ D_h Lₜₕᵀ` (dense
-    /// `n_top × n_top`, column-major, lower triangle).
+    /// The values of `M_h` from `A`'s `values`, in the order of the half's lower pattern.
+    fn gather(&self, values: &[f64]) -> Vec<f64> {
+        self.source
+            .iter()
+            .map(|&e| if e == UNIT { SEPARATOR_STAND_IN } else { values[e as usize] })
+            .collect()
+    }
+
+    /// `(A y)` restricted to this half's entries of `A`'s lower triangle and their mirror
+    /// images, `y` in the permuted numbering: the half's own rows added into `own_rows`, the
+    /// separator's rows returned (`n − top_start` of them). The stand-in entries of `M_h`'s
+    /// separator block are not `A`'s and are skipped.
+    fn add_product(
+        &self,
+        m_values: &[f64],
+        y: &[f64],
+        top_start: usize,
+        own_rows: &mut [f64],
+    ) -> Vec<f64> {
+        let global =
+            |i: usize| if i < self.own { self.start + i } else { top_start + i - self.own };
+        let mut top_rows = vec![0.0; y.len() - top_start];
+        let (col_ptr, row_idx) = (self.lower.col_ptr(), self.lower.row_idx());
+        for j in 0..self.own {
+            let y_j = y[self.start + j];
+            let mut mirrored = 0.0;
+            for k in col_ptr[j]..col_ptr[j + 1] {
+                let (i, value) = (row_idx[k], m_values[k]);
+                mirrored += value * y[global(i)];
+                if i == j {
+                    continue;
+                }
+                match i.checked_sub(self.own) {
+                    Some(t) => top_rows[t] += value * y_j,
+                    None => own_rows[i] += value * y_j,
+                }
+            }
+            own_rows[j] += mirrored;
+        }
+        top_rows
+    }
+
+    /// Factorises `M_h` with its values `m_values` ([`Half::gather`]) into `l_values`;
+    /// returns `Lₜₕ D_h Lₜₕᵀ` (dense `n_top × n_top`, column-major, lower triangle).
     fn factorize(
         &self,
-        values: &[f64],
+        m_values: &[f64],
         regularization: Option<PivotRegularization>,
         n_top: usize,
         l_values: &mut Vec<f64>,
     ) -> Result<Vec<f64>, String> {
-        let m_values: Vec<f64> = self
-            .source
-            .iter()
-            .map(|&e| if e == UNIT { SEPARATOR_STAND_IN } else { values[e as usize] })
-            .collect();
-        let matrix = SparseColMatRef::new(self.lower.as_ref(), &m_values);
+        let matrix = SparseColMatRef::new(self.lower.as_ref(), m_values);
         l_values.resize(self.symbolic.len_val(), 0.0);
         let scratch = supernodal::factorize_supernodal_numeric_ldlt_scratch::<usize, f64>(
             &self.symbolic,
@@ -443,7 +546,6 @@ impl Half {
             Default::default(),
         )
         .map_err(|e| format!("half from {}: {e:?}", self.start))?;
-        drop(m_values);
         Ok(self.separator_update(l_values, n_top))
     }
 
@@ -648,7 +750,9 @@ mod tests {
             let mut factor = SplitFactor::default();
             let mut x = rhs.clone();
             pool.install(|| {
-                split.factorize(a.val(), regularization, Par::Seq, &mut factor).unwrap();
+                split
+                    .factorize(&split.gather(a.val()), regularization, Par::Seq, &mut factor)
+                    .unwrap();
                 split.solve_in_place(&factor, &mut x);
             });
             let diff = x.iter().zip(&reference).fold(0.0f64, |s, (a, b)| s.max((a - b).abs()));
@@ -657,6 +761,35 @@ mod tests {
                 "shift {shift}, {threads} thread(s): max difference {diff:e}"
             );
         }
+    }
+
+    /// The residual from the gathered values equals `b − A x` computed from the full
+    /// pattern, with the separator's own block and both halves' couplings to it.
+    #[test]
+    fn residual_of_the_gathered_values_matches_the_full_matrix() {
+        let m = 30;
+        let n = m * m;
+        let mut perm = Vec::new();
+        grid_dissection(0..m, 0..m, m, &mut perm);
+        let halves = Halves { first: (m / 2) * m, second: (m - m / 2 - 1) * m };
+        let a = grid_matrix(m, -1.0);
+        let split = SplitSymbolic::analyse(a.symbolic(), &perm, &inverse(&perm), halves, &[1; 900])
+            .unwrap()
+            .expect("the grid's halves are separated");
+        let x: Vec<f64> = (0..n).map(|k| ((k * 53) % 97) as f64 / 40.0 - 1.0).collect();
+        let b: Vec<f64> = (0..n).map(|k| ((k * 31) % 89) as f64 / 30.0).collect();
+        let mut expected = b.clone();
+        for (j, &x_j) in x.iter().enumerate() {
+            for (&i, &value) in a.row_idx_of_col_raw(j).iter().zip(a.val_of_col(j)) {
+                expected[i] -= value * x_j;
+            }
+        }
+        let mut r = vec![f64::NAN; n];
+        let squares = split.residual(&split.gather(a.val()), &x, &b, &mut r);
+        let diff = r.iter().zip(&expected).fold(0.0f64, |s, (a, b)| s.max((a - b).abs()));
+        assert!(diff <= 1e-12, "max difference {diff:e}");
+        let expected_squares: f64 = expected.iter().map(|v| v * v).sum();
+        assert!((squares - expected_squares).abs() <= 1e-12 * expected_squares);
     }
 
     /// An ordering whose "halves" share a matrix entry is refused.
